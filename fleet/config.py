@@ -1,0 +1,152 @@
+"""Program configuration (TOML) with defaults and validation.
+
+A program file only needs the keys it changes: everything else comes from the
+bundled demo program (``fleet/data/demo_program.toml``). Unknown sections or
+keys are reported, because a misspelt key silently ignored is a wrong plan.
+"""
+
+from __future__ import annotations
+
+import copy
+import tomllib
+from dataclasses import dataclass
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+from .errors import InputError, Problem
+
+#: (section, key) -> (type, lower bound, upper bound, unit); bounds inclusive, None = open.
+SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
+    ("program", "name"): (str, None, None, ""),
+    ("program", "reliability_target"): (float, 0.0, 1.0, "fraction of demand unmet"),
+    ("program", "target_confidence"): (float, 0.5, 1.0, "weather-year quantile"),
+    ("program", "weather_years"): (int, 1, 200, "years"),
+    ("program", "seed"): (int, 0, None, ""),
+    ("program", "horizon_years"): (int, 1, 50, "years"),
+    ("program", "discount_rate"): (float, 0.0, 0.5, "per year"),
+    ("catalogue", "max_kit_types_shs"): (int, 1, 50, "kit types"),
+    ("catalogue", "max_kit_types_minigrid"): (int, 1, 50, "block types"),
+    ("catalogue", "cost_per_kit_type_usd"): (float, 0.0, None, "USD"),
+    ("catalogue", "spares_fraction"): (float, 0.0, 1.0, "fraction"),
+    ("catalogue", "solver"): (str, None, None, "cbc or highs"),
+    ("catalogue", "time_limit_s"): (float, 1.0, None, "s"),
+    ("system", "voltages_v"): (list, None, None, "V"),
+    ("system", "reconnect_hysteresis_soc"): (float, 0.0, 0.5, "state of charge"),
+    ("system", "max_parallel_battery_strings"): (int, 1, 10, "strings"),
+    ("system", "design_cell_temp_hot_c"): (float, 30.0, 100.0, "degC"),
+    ("temperature", "default_mean_c"): (float, -30.0, 50.0, "degC"),
+    ("temperature", "default_min_c"): (float, -50.0, 40.0, "degC"),
+    ("temperature", "daily_amplitude_k"): (float, 0.0, 20.0, "K"),
+    ("resource", "correction_factor"): (float, 0.3, 1.5, "multiplier on GHI"),
+    ("resource", "persistence"): (float, 0.0, 0.95, "lag-1 autocorrelation"),
+    ("resource", "max_distance_km"): (float, 0.0, 2000.0, "km"),
+    ("pv", "losses_fraction"): (float, 0.0, 0.5, "fraction"),
+    ("pv", "albedo"): (float, 0.0, 1.0, "fraction"),
+    ("demand", "household_day_to_day_sd"): (float, 0.0, 1.0, "relative"),
+    ("demand", "common_day_to_day_sd"): (float, 0.0, 1.0, "relative"),
+    ("demand", "minigrid_distribution_losses"): (float, 0.0, 0.5, "fraction"),
+    ("economics", "om_fraction_per_year"): (float, 0.0, 0.5, "of capex per year"),
+    ("economics", "controller_life_years"): (float, 1.0, 50.0, "years"),
+    ("economics", "inverter_life_years"): (float, 1.0, 50.0, "years"),
+}
+
+ALLOWED_VOLTAGES_V = (12, 24, 48)
+
+
+def default_config_path() -> Path:
+    """Path of the bundled demo program configuration."""
+    return Path(str(resources.files("fleet").joinpath("data", "demo_program.toml")))
+
+
+@dataclass(frozen=True)
+class ProgramConfig:
+    """A validated program configuration: ``cfg["section"]["key"]`` access."""
+
+    values: dict[str, dict[str, Any]]
+    source: str
+
+    def __getitem__(self, section: str) -> dict[str, Any]:
+        return self.values[section]
+
+    def with_overrides(self, **sections: dict[str, Any]) -> "ProgramConfig":
+        """A copy with some keys replaced, validated again (for the API and tests)."""
+        merged = copy.deepcopy(self.values)
+        for section, keys in sections.items():
+            merged.setdefault(section, {}).update(keys)
+        return validate_config(merged, self.source)
+
+
+def _read_toml(path: Path, label: str) -> dict[str, Any]:
+    try:
+        with open(path, "rb") as fh:
+            return tomllib.load(fh)
+    except FileNotFoundError:
+        raise InputError([Problem(label, None, None, "file not found")]) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError([Problem(label, None, None, f"not valid TOML: {exc}")]) from None
+
+
+def validate_config(raw: dict[str, Any], label: str) -> ProgramConfig:
+    """Check types and ranges of every key; collect every problem."""
+    problems: list[Problem] = []
+    out: dict[str, dict[str, Any]] = {}
+    for section, keys in raw.items():
+        if not isinstance(keys, dict):
+            problems.append(Problem(label, None, section, "expected a [section] table"))
+            continue
+        for key, value in keys.items():
+            spec = SCHEMA.get((section, key))
+            name = f"{section}.{key}"
+            if spec is None:
+                problems.append(Problem(label, None, name, "unknown key"))
+                continue
+            kind, lo, hi, unit = spec
+            if kind is float and isinstance(value, int) and not isinstance(value, bool):
+                value = float(value)
+            if kind is list:
+                ok = isinstance(value, list) and value and all(v in ALLOWED_VOLTAGES_V for v in value)
+                if not ok:
+                    problems.append(Problem(label, None, name, f"expected a list drawn from {list(ALLOWED_VOLTAGES_V)}"))
+                    continue
+            elif not isinstance(value, kind) or isinstance(value, bool):
+                problems.append(Problem(label, None, name, f"expected {kind.__name__}, got {value!r}"))
+                continue
+            elif kind in (int, float):
+                if (lo is not None and value < lo) or (hi is not None and value > hi):
+                    rng = f"{lo if lo is not None else '-inf'}..{hi if hi is not None else 'inf'}"
+                    problems.append(Problem(label, None, name, f"{value} is outside {rng} {unit}".rstrip()))
+                    continue
+            out.setdefault(section, {})[key] = value
+    solver = out.get("catalogue", {}).get("solver")
+    if solver is not None and solver not in ("cbc", "highs"):
+        problems.append(Problem(label, None, "catalogue.solver", f"'{solver}' is not one of cbc, highs"))
+    missing = [f"{s}.{k}" for (s, k) in SCHEMA if k not in out.get(s, {})]
+    if missing and not problems:
+        problems.append(Problem(label, None, None, "missing keys: " + ", ".join(missing)))
+    if problems:
+        raise InputError(problems)
+    return ProgramConfig(out, label)
+
+
+def load_config(path: str | Path | None = None) -> ProgramConfig:
+    """Read a program TOML file over the bundled defaults and validate it.
+
+    Parameters
+    ----------
+    path : str or Path, optional
+        A program file. Keys it leaves out take the bundled demo values.
+        None gives the bundled demo program itself.
+    """
+    base = _read_toml(default_config_path(), "bundled demo_program.toml")
+    if path is None:
+        return validate_config(base, str(default_config_path()))
+    label = str(path)
+    user = _read_toml(Path(path), label)
+    merged = copy.deepcopy(base)
+    for section, keys in user.items():
+        if isinstance(keys, dict) and isinstance(merged.get(section), dict):
+            merged[section].update(keys)
+        else:
+            merged[section] = keys
+    return validate_config(merged, label)
