@@ -48,9 +48,9 @@ def cycles_to_failure(dod: np.ndarray | float, a: float, b: float) -> np.ndarray
     return a * np.clip(np.asarray(dod, dtype=float), 0.01, 1.0) ** (-b)
 
 
-def lifetime_throughput_wh(nominal_wh: float, usable_dod: float, a: float, b: float) -> float:
+def lifetime_throughput_wh(nominal_wh, usable_dod, a, b) -> np.ndarray:
     """Energy a battery can deliver over its cycle life (Wh), rated at its usable depth of discharge [1]_."""
-    return float(cycles_to_failure(usable_dod, a, b) * usable_dod * nominal_wh)
+    return cycles_to_failure(usable_dod, a, b) * np.asarray(usable_dod) * np.asarray(nominal_wh)
 
 
 def service_life_years(annual_throughput_wh: np.ndarray | float, nominal_wh: float, usable_dod: float,
@@ -71,8 +71,9 @@ def service_life_years(annual_throughput_wh: np.ndarray | float, nominal_wh: flo
         Float life at the reference temperature, years.
     """
     total = lifetime_throughput_wh(nominal_wh, usable_dod, a, b)
+    annual = np.asarray(annual_throughput_wh, dtype=float)
     with np.errstate(divide="ignore"):
-        wear = np.where(np.asarray(annual_throughput_wh) > 0, total / np.asarray(annual_throughput_wh, dtype=float), np.inf)
+        wear = np.where(annual > 0, total / np.where(annual > 0, annual, 1.0), np.inf)
     return np.minimum(wear, calendar_life_years)
 
 

@@ -248,8 +248,12 @@ def _trace(poa, tcell, load, scale, p):
         out[h, 1] = 1.0 if on else 0.0
         e, on = r[0], r[1]
         out[h, 0] = e / enom
-        for k in range(2, 8):
-            out[h, k] = r[k]
+        out[h, 2] = r[2]
+        out[h, 3] = r[3]
+        out[h, 4] = r[4]
+        out[h, 5] = r[5]
+        out[h, 6] = r[6]
+        out[h, 7] = r[7]
         out[h, 8] = lw
         out[h, 9] = r[8]
         out[h, 10] = r[9]

@@ -294,7 +294,7 @@ def _require_columns(frame: pd.DataFrame, columns, what: str) -> None:
 
 def _roundup(x: float) -> float:
     """Excel ROUNDUP(x, 0) for x >= 0, ignoring floating-point dust
-    (3 * 10 * 0.1 is 3, not 4)."""
+    (1 * 100 * 0.07 is 7, not 8)."""
     return float(math.ceil(round(x, 9)))
 
 
@@ -507,12 +507,14 @@ def _write_by_kit(workbook, formats: _Formats, lines: pd.DataFrame, kit_keys, ki
     grand = sum(values["extended"] for _, values in item_rows)
     ext_col, line_col = xl_col_to_name(_EXTENDED), xl_col_to_name(_LINE)
     ws.write_string(row, _DESCRIPTION, "grand total, all kit types", bold)
-    last_row_excel = max(row, first_data + 1)
-    ws.write_formula(
-        row, _EXTENDED,
-        f'=SUMIF({line_col}{first_data + 1}:{line_col}{last_row_excel},"{LINE_ITEM}",'
-        f'{ext_col}{first_data + 1}:{ext_col}{last_row_excel})',
-        formats.get(price_fmt, bold=True), grand)
+    if item_rows:
+        ws.write_formula(
+            row, _EXTENDED,
+            f'=SUMIF({line_col}{first_data + 1}:{line_col}{row},"{LINE_ITEM}",'
+            f'{ext_col}{first_data + 1}:{ext_col}{row})',
+            formats.get(price_fmt, bold=True), grand)
+    else:
+        ws.write_number(row, _EXTENDED, 0.0, formats.get(price_fmt, bold=True))
     ws.write_string(row, _LINE, LINE_TOTAL, bold)
 
     # Column widths from the content.
@@ -589,7 +591,10 @@ def _write_by_component(workbook, formats: _Formats, lines: pd.DataFrame,
     bold = formats.get(bold=True)
     ws.write_string(row, 2, "grand total, all components", bold)
     grand = sum(g["extended"] for g in groups.values())
-    ws.write_formula(row, 6, f"=SUM(G2:G{max(row, 2)})", formats.get(price_fmt, bold=True), grand)
+    if groups:
+        ws.write_formula(row, 6, f"=SUM(G2:G{row})", formats.get(price_fmt, bold=True), grand)
+    else:
+        ws.write_number(row, 6, 0.0, formats.get(price_fmt, bold=True))
     ws.write_string(row, 7, LINE_TOTAL, bold)
 
     widths_from = {

@@ -1,0 +1,286 @@
+"""Turn a :class:`fleet.plan.PlanResult` into the run folder's tables and
+files: bill of materials, deployment summary (workbook and HTML), site layer
+and run record. Writing is atomic: the folder appears complete or not at all.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import platform
+import shutil
+import time
+from importlib import metadata
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from .plan import PlanResult, assigned_options
+
+CAUTIONS = [
+    "This plan is a planning estimate, not an installation design. Every system must be designed, installed and "
+    "inspected by qualified, licensed practitioners under the local electrical code, which prevails over anything here.",
+    "DC circuits can sustain arcs that do not self-extinguish: use DC-rated switches, breakers and fuses, and never "
+    "open a loaded DC circuit with a connector or an AC-rated device.",
+    "Protect every battery and every PV string with correctly rated fuses or breakers placed close to the source; "
+    "size conductors for ampacity and voltage drop under the local code.",
+    "Batteries store large energy: a short circuit can cause fire and burns. Lead-acid batteries release hydrogen while "
+    "charging: install them in ventilated enclosures away from ignition sources, with acid-resistant surfaces and eye "
+    "protection at hand. Lithium batteries need a battery management system and must not be charged below 0 degC.",
+    "PV modules produce voltage whenever light falls on them; cover or isolate arrays before working on them.",
+    "Component prices in the bundled demo library are invented; replace them with quotations before any decision.",
+]
+
+
+def _versions() -> dict[str, str]:
+    out = {"python": platform.python_version()}
+    for pkg in ("fleet", "numpy", "pandas", "geopandas", "pvlib", "pulp", "numba", "gsee-climate-data",
+                "openpyxl", "xlsxwriter", "matplotlib"):
+        try:
+            out[pkg] = metadata.version(pkg)
+        except metadata.PackageNotFoundError:
+            out[pkg] = "not installed"
+    return out
+
+
+def file_sha256(path: str | Path) -> str:
+    """SHA-256 of a file, or of every file in a folder in name order."""
+    h = hashlib.sha256()
+    p = Path(path)
+    files = sorted(f for f in p.rglob("*") if f.is_file()) if p.is_dir() else [p]
+    for f in files:
+        h.update(f.name.encode())
+        h.update(f.read_bytes())
+    return h.hexdigest()
+
+
+def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
+    """The tables every output draws on."""
+    units = result.units
+    chosen = assigned_options(result)
+    kits = result.kits.set_index("kit_id")
+    c = chosen.merge(units[["unit_id", "daily_energy_wh", "peak_power_w"]], on="unit_id", how="left")
+    c["kits_bought"] = c["count"] * c["blocks"]
+    c["array_kwp"] = c.kit_id.map(kits.array_wp) * c.kits_bought / 1000.0
+    c["battery_kwh"] = c.kit_id.map(kits.battery_nominal_wh) * c.kits_bought / 1000.0
+    c["demand_kwh_day"] = c.daily_energy_wh * c["count"] / 1000.0
+    c["unmet_kwh_day"] = c.demand_kwh_day * c.unmet_fraction_design
+    sites = result.sites.copy()
+    hh = sites[[f"households_t{t}" for t in range(1, 6)]].sum(axis=1)
+
+    per_site = c.groupby("site_id").agg(
+        kits_bought=("kits_bought", "sum"), array_kwp=("array_kwp", "sum"), battery_kwh=("battery_kwh", "sum"),
+        capex_usd=("capex_usd", "sum"), lifecycle_cost_usd=("cost_usd", "sum"),
+        demand_kwh_day=("demand_kwh_day", "sum"), unmet_kwh_day=("unmet_kwh_day", "sum"))
+    label = c.assign(part=lambda d: np.where(d.scheme == "minigrid", d.blocks.astype(str) + " x " + d.kit_id,
+                                             d.group + ": " + d["count"].astype(str) + " x " + d.kit_id))
+    per_site["kits"] = label.groupby("site_id").part.agg("; ".join)
+    unserved = result.unserved.groupby("site_id").apply(
+        lambda g: "; ".join(f"{r.group}: {r.reason}" for r in g.itertuples()), include_groups=False)
+    demand_all = pd.Series(result.units.daily_energy_wh.to_numpy() * result.units["count"].to_numpy() / 1000.0,
+                           index=result.units.site_id).groupby(level=0).sum()
+    sites = sites.set_index("site_id", drop=False)
+    plan_cols = pd.DataFrame(index=sites.index)
+    plan_cols["kits"] = per_site.kits.reindex(sites.index).fillna("")
+    plan_cols["kits_bought"] = per_site.kits_bought.reindex(sites.index).fillna(0).astype(int)
+    plan_cols["array_kwp"] = per_site.array_kwp.reindex(sites.index).fillna(0.0)
+    plan_cols["battery_kwh"] = per_site.battery_kwh.reindex(sites.index).fillna(0.0)
+    plan_cols["demand_kwh_day"] = demand_all.reindex(sites.index).fillna(0.0)
+    plan_cols["unmet_fraction_design"] = (per_site.unmet_kwh_day / per_site.demand_kwh_day.replace(0, np.nan)).reindex(sites.index)
+    plan_cols["capex_usd"] = per_site.capex_usd.reindex(sites.index).fillna(0.0)
+    plan_cols["lifecycle_cost_usd"] = per_site.lifecycle_cost_usd.reindex(sites.index).fillna(0.0)
+    plan_cols["households"] = hh.to_numpy()
+    plan_cols["cost_per_household_usd"] = plan_cols.lifecycle_cost_usd / plan_cols.households.replace(0, np.nan)
+    plan_cols["not_served"] = unserved.reindex(sites.index).fillna("")
+    w = result.weather.info.set_index("site_id")
+    plan_cols["ghi_kwh_m2_day"] = w.ghi_kwh_m2_day.reindex(sites.index)
+    plan_cols["temp_mean_default_used"] = w.temp_mean_default.reindex(sites.index)
+    site_layer = sites.join(plan_cols.add_prefix("plan_")).reset_index(drop=True)
+
+    per_site_full = sites[["site_id", "site_name", "district", "depot", "scheme"]].join(plan_cols)
+    # kit counts per depot for the bill of materials
+    c["depot"] = c.site_id.map(sites.depot)
+    kit_counts = c.groupby(["scheme", "kit_id", "depot"], as_index=False).kits_bought.sum().rename(columns={"kits_bought": "kits"})
+    chosen_ids = kit_counts.kit_id.unique()
+    bom = result.bom[result.bom.kit_id.isin(chosen_ids)].merge(result.kits[["kit_id", "kit_label", "scheme"]], on="kit_id")
+
+    def rollup(by: str) -> pd.DataFrame:
+        g = per_site_full.groupby(by)
+        t = pd.DataFrame({
+            "sites": g.size(),
+            **{f"households tier {k}": result.sites.groupby(by)[f"households_t{k}"].sum() for k in range(1, 6)},
+            "kits or blocks": g.kits_bought.sum(), "array (kWp)": g.array_kwp.sum(),
+            "battery (kWh)": g.battery_kwh.sum(), "demand (kWh/day)": g.demand_kwh_day.sum(),
+            "capex (USD)": g.capex_usd.sum(), "lifecycle cost (USD)": g.lifecycle_cost_usd.sum(),
+        })
+        t["cost per household (USD)"] = t["lifecycle cost (USD)"] / t[[f"households tier {k}" for k in range(1, 6)]].sum(axis=1).replace(0, np.nan)
+        un = c.assign(by=c.site_id.map(sites[by])).groupby("by")[["unmet_kwh_day", "demand_kwh_day"]].sum()
+        t["unmet energy, design year (%)"] = 100 * un.unmet_kwh_day / un.demand_kwh_day.replace(0, np.nan)
+        t["sites with a unit not served"] = per_site_full.assign(x=per_site_full.not_served != "").groupby(by).x.sum()
+        return t.reset_index().rename(columns={by: by})
+
+    by_district = rollup("district")
+    by_depot = rollup("depot")
+    kt = kit_counts.groupby(["scheme", "kit_id"], as_index=False).kits.sum()
+    kt = kt.merge(result.kits, on=["scheme", "kit_id"])
+    kit_types = pd.DataFrame({
+        "scheme": kt.scheme, "kit_id": kt.kit_id, "description": kt.kit_label,
+        "kits or blocks deployed": kt.kits, "array (Wp)": kt.array_wp, "battery nominal (Wh)": kt.battery_nominal_wh,
+        "battery usable (Wh)": kt.battery_usable_wh, "system voltage (V)": kt.system_voltage_v,
+        "controller": kt.controller_id, "inverter": kt.inverter_id, "output rating (W)": kt.max_load_w,
+        "capex per kit (USD)": kt.capex_usd,
+        "low-voltage disconnect (SOC)": kt.soc_lvd,
+        "reconnect (SOC)": np.minimum(kt.soc_lvd + result.config["system"]["reconnect_hysteresis_soc"], 0.95),
+    })
+    n_hh = int(hh.sum())
+    total_demand = float(per_site_full.demand_kwh_day.sum())
+    served_demand = float(c.demand_kwh_day.sum())
+    program = pd.DataFrame([
+        ("sites", len(sites), "sites"),
+        *[(f"households tier {k}", int(result.sites[f"households_t{k}"].sum()), "households") for k in range(1, 6)],
+        ("health posts", int(result.sites.health_posts.sum()), "facilities"),
+        ("schools", int(result.sites.schools.sum()), "facilities"),
+        ("solar home system kits", int(c[c.scheme == "shs"].kits_bought.sum()), "kits"),
+        ("minigrid plant blocks", int(c[c.scheme == "minigrid"].kits_bought.sum()), "blocks"),
+        ("kit types in the catalogue (SHS)", len(result.catalogues["shs"].chosen_kits), "types"),
+        ("block types in the catalogue (minigrid)", len(result.catalogues["minigrid"].chosen_kits), "types"),
+        ("array", float(c.array_kwp.sum()), "kWp"),
+        ("battery (nominal)", float(c.battery_kwh.sum()), "kWh"),
+        ("demand", total_demand, "kWh/day"),
+        ("capex", float(c.capex_usd.sum()), "USD"),
+        ("lifecycle cost (net present)", float(c.cost_usd.sum()), "USD"),
+        ("cost per household (lifecycle)", float(c.cost_usd.sum()) / max(n_hh, 1), "USD/household"),
+        ("cost per kWh served (LCOE)", _program_lcoe(c, result), "USD/kWh"),
+        ("unmet energy in the design weather year", 100 * float(c.unmet_kwh_day.sum()) / max(served_demand, 1e-9), "% of demand of served units"),
+        ("demand of units with no kit", total_demand - served_demand, "kWh/day"),
+        ("service units with no kit", len(result.unserved), "units"),
+    ], columns=["metric", "value", "unit"])
+    sites_table = per_site_full.reset_index(drop=True).rename(columns={
+        "kits_bought": "kits or blocks", "array_kwp": "array (kWp)", "battery_kwh": "battery (kWh)",
+        "demand_kwh_day": "demand (kWh/day)", "unmet_fraction_design": "unmet energy, design year (fraction)",
+        "capex_usd": "capex (USD)", "lifecycle_cost_usd": "lifecycle cost (USD)",
+        "cost_per_household_usd": "cost per household (USD)", "not_served": "not served (reason)",
+        "ghi_kwh_m2_day": "GHI (kWh/m2/day)", "temp_mean_default_used": "default temperature used"})
+    unserved_table = result.unserved.rename(columns={"nearest_unmet_fraction_design": "nearest option unmet energy (fraction)"})
+    return {"program": program, "by_district": by_district, "by_depot": by_depot, "sites": sites_table,
+            "kit_types": kit_types, "comparisons": result.comparisons, "unserved": unserved_table,
+            "_bom": bom, "_kit_counts": kit_counts, "_site_layer": site_layer, "_chosen": c}
+
+
+def _program_lcoe(c: pd.DataFrame, result: PlanResult) -> float:
+    p = result.config["program"]
+    served = float((c.served_kwh_year_per_kit * c["count"]).sum())
+    from .economics import levelised_cost_usd_per_kwh
+    return float(levelised_cost_usd_per_kwh(float(c.cost_usd.sum()), served, p["horizon_years"], p["discount_rate"]))
+
+
+def assumptions(result: PlanResult) -> list[tuple[str, object, str]]:
+    cfg = result.config
+    rows = []
+    for section, keys in cfg.values.items():
+        for k, v in keys.items():
+            rows.append((f"{section}.{k}", v if not isinstance(v, list) else ", ".join(map(str, v)), ""))
+    rows += [
+        ("solar resource", "MERRA-2 reanalysis daily GHI distributions 2011-2015 on a 3 degree grid "
+         "(Gelaro et al. 2017; Pfenninger & Staffell 2016), synthetic years with AR(1) persistence", ""),
+        ("hourly irradiance", "Ineichen clear sky (pvlib, bundled Linke turbidity) x daily clear-sky index; Erbs; Perez; Faiman", ""),
+        ("clock", "hours are local standard time from the site's time zone (tzfpy), without daylight saving", ""),
+        ("design weather year", f"the {cfg['program']['target_confidence']:.0%} quantile of {cfg['program']['weather_years']} synthetic years", ""),
+        ("battery ageing", "energy-throughput life from the cycle-life curve at the usable depth of discharge, capped by calendar life", ""),
+        ("demand", "Multi-Tier Framework tier appliance mixes; minigrid loads summed with a coincidence factor for peaks", ""),
+    ]
+    return rows
+
+
+def figures(result: PlanResult, tables: dict) -> dict:
+    from .report import plots
+    figs = {}
+    layer = tables["_site_layer"]
+    lab = layer.plan_kits.where(layer.plan_kits != "", "no kit").str.split(";").str[0].str.split(": ").str[-1].str.split(" x ").str[-1]
+    figs["Sites by main kit type"] = plots.site_map(layer.longitude.to_numpy(), layer.latitude.to_numpy(), lab.to_numpy(),
+                                                     "Sites coloured by their main kit or block type")
+    c = tables["_chosen"]
+    figs["Reliability of served units"] = plots.reliability_histogram(c.unmet_fraction_design.to_numpy(), result.config["program"]["reliability_target"])
+    for scheme, tr in result.traces.items():
+        figs[f"State of charge at a typical {scheme} unit"] = plots.soc_trace(
+            np.arange(len(tr["soc"])), tr["soc"], tr["connected"] < 0.5,
+            f"{tr['unit_id']} with {tr['kit_id']} (design weather year {tr['weather_year'] + 1})")
+    kt = tables["kit_types"]
+    per = c.groupby("kit_id")[["capex_usd", "cost_usd"]].sum().reindex(kt.kit_id)
+    figs["Cost by kit type"] = plots.cost_by_kit_type(kt.kit_id.to_numpy(), per.capex_usd.to_numpy(), per.cost_usd.to_numpy())
+    return figs
+
+
+def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str], overwrite: bool = False,
+              started: float | None = None) -> dict[str, Path]:
+    """Write all outputs into ``out_dir`` atomically and return their paths.
+
+    The files are written into a hidden sibling folder first and moved into
+    place only when all are complete, so a failed run leaves any earlier
+    run folder untouched.
+    """
+    from .report import (write_bill_of_materials, write_deployment_html, write_deployment_summary,
+                         write_sites_gpkg)
+    out = Path(out_dir)
+    if out.exists() and any(out.iterdir()) and not overwrite:
+        raise FileExistsError(f"{out} already holds a run; choose another --out or pass --overwrite")
+    out.parent.mkdir(parents=True, exist_ok=True)
+    tmp = out.parent / f".{out.name}.partial-{os.getpid()}"
+    if tmp.exists():
+        shutil.rmtree(tmp)
+    tmp.mkdir()
+    try:
+        tables = plan_tables(result)
+        notes = assumptions(result)
+        spares = result.config["catalogue"]["spares_fraction"]
+        write_bill_of_materials(tmp / "bill_of_materials.xlsx", tables["_bom"], tables["_kit_counts"],
+                                spares_fraction=spares, assumptions=notes, cautions=CAUTIONS)
+        public = {k: v for k, v in tables.items() if not k.startswith("_")}
+        write_deployment_summary(tmp / "deployment_summary.xlsx", public, warnings=result.warnings,
+                                 assumptions=notes, cautions=CAUTIONS)
+        write_deployment_html(tmp / "deployment_summary.html", public, figures(result, tables),
+                              title=result.config["program"]["name"], warnings=result.warnings,
+                              assumptions=notes, cautions=CAUTIONS)
+        write_sites_gpkg(tmp / "sites.gpkg", tables["_site_layer"])
+        record = {
+            "fleet_run": 1,
+            "created_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
+            "inputs": {k: {"path": str(v), "sha256": file_sha256(v)} for k, v in inputs.items() if v},
+            "versions": _versions(),
+            "seed": result.config["program"]["seed"],
+            "config": result.config.values,
+            "timings_s": {k: round(v, 3) for k, v in result.timings_s.items()}
+                          | ({"total": round(time.perf_counter() - started, 3)} if started else {}),
+            "catalogue": {s: {"kit_types": r.chosen_kits, "status": r.status, "objective_usd": r.objective_usd,
+                              "lp_bound_usd": r.lower_bound_usd, "gap": r.gap, "units": r.units,
+                              "distinct_cases": r.distinct_cases, "solve_seconds": round(r.solve_seconds, 3),
+                              "solver": r.solver}
+                          for s, r in result.catalogues.items()},
+            "options_simulated": int(len(result.evaluations)),
+            "warnings": result.warnings,
+        }
+        (tmp / "run.json").write_text(json.dumps(record, indent=2, default=_json_default))
+        if out.exists():
+            old = out.parent / f".{out.name}.old-{os.getpid()}"
+            out.rename(old)
+            tmp.rename(out)
+            shutil.rmtree(old, ignore_errors=True)
+        else:
+            tmp.rename(out)
+    except BaseException:
+        shutil.rmtree(tmp, ignore_errors=True)
+        raise
+    return {name: out / name for name in ("bill_of_materials.xlsx", "deployment_summary.xlsx",
+                                          "deployment_summary.html", "sites.gpkg", "run.json")}
+
+
+def _json_default(o):
+    if isinstance(o, (np.integer,)):
+        return int(o)
+    if isinstance(o, (np.floating,)):
+        return float(o)
+    if isinstance(o, Path):
+        return str(o)
+    return str(o)

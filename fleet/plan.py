@@ -1,0 +1,409 @@
+"""The whole planning run: sites → demand → weather → kits → dispatch →
+reliability and cost → catalogue → plan tables.
+
+This module composes the core; it reads no files and prints nothing. Long
+stages report through an optional ``tracker`` (the CLI passes progress bars).
+"""
+
+from __future__ import annotations
+
+import time
+import zlib
+from dataclasses import dataclass, field
+from typing import Any, Callable, Iterable
+
+import numpy as np
+import pandas as pd
+
+from . import battery, dispatch, economics
+from .catalogue import CatalogueResult, custom_best, optimise_catalogue
+from .components import ComponentLibrary
+from .config import ProgramConfig
+from .demand import HOURS_PER_YEAR, service_units, unit_loads
+from .errors import InputError, Problem
+from .kits import DesignConditions, candidate_kits, kernel_parameters
+from .resource import site_weather
+
+#: Kits whose array would give more than this many times the unit's yearly
+#: demand are not offered to it (wasteful; keeps the search small).
+OVERSIZE_LIMIT = 6.0
+#: Block counts tried per minigrid site and block type, as multiples of the
+#: count whose yearly array yield equals the yearly demand.
+#: A site further than this from its resource cell's centre is not in a cell
+#: with data (half the diagonal of a 3-degree cell is about 235 km).
+FAR_CELL_KM = 240.0
+BLOCK_COUNT_FACTORS = (0.9, 1.1, 1.3, 1.55, 1.85, 2.2)
+
+
+class _Quiet:
+    def stage(self, name: str) -> None:  # noqa: D401 - protocol
+        pass
+
+    def wrap(self, iterable: Iterable, total: int, desc: str) -> Iterable:
+        return iterable
+
+
+@dataclass
+class Weather:
+    """Weather of every site, stacked for the kernel."""
+
+    poa_wm2: np.ndarray  # (n_sites, n_years, 8760) float32
+    cell_temp_c: np.ndarray  # same
+    info: pd.DataFrame  # per site: cell, distance, offset, tilt, temperatures used, annual figures
+
+
+@dataclass
+class PlanResult:
+    """Everything a run produces, as tables; writers turn it into files."""
+
+    sites: Any  # GeoDataFrame with the plan's columns
+    units: pd.DataFrame
+    kits: pd.DataFrame  # every candidate
+    bom: pd.DataFrame  # BOM lines of every candidate
+    evaluations: pd.DataFrame  # one row per simulated (unit, kit[, blocks]) option
+    catalogues: dict[str, CatalogueResult]
+    comparisons: pd.DataFrame
+    unserved: pd.DataFrame
+    weather: Weather
+    loads_w: np.ndarray
+    warnings: list[str]
+    timings_s: dict[str, float]
+    rejected_designs: pd.DataFrame
+    config: ProgramConfig
+    traces: dict[str, dict] = field(default_factory=dict)
+
+
+def site_seed(seed: int, site_id: str) -> int:
+    """A per-site seed that does not change when other sites are added or removed."""
+    return (int(seed) * 1_000_003 + zlib.crc32(str(site_id).encode())) % (2**32)
+
+
+def build_weather(sites, cfg: ProgramConfig, tracker=None) -> Weather:
+    """Synthetic weather years for every site (raises InputError for sites off the data)."""
+    tracker = tracker or _Quiet()
+    n_years = cfg["program"]["weather_years"]
+    t = cfg["temperature"]
+    poa = np.zeros((len(sites), n_years, HOURS_PER_YEAR), np.float32)
+    tc = np.zeros_like(poa)
+    rows, problems = [], []
+    label = getattr(sites, "attrs", {}).get("source", "site table")
+    for i, s in tracker.wrap(enumerate(sites.itertuples(index=False)), len(sites), "weather years"):
+        mean_default = not np.isfinite(s.temp_mean_c)
+        temp_mean = t["default_mean_c"] if mean_default else float(s.temp_mean_c)
+        try:
+            w = site_weather(s.latitude, s.longitude, n_years=n_years, seed=site_seed(cfg["program"]["seed"], s.site_id),
+                             temp_mean_c=temp_mean, temp_daily_amplitude_k=t["daily_amplitude_k"],
+                             correction_factor=cfg["resource"]["correction_factor"],
+                             persistence=cfg["resource"]["persistence"], albedo=cfg["pv"]["albedo"],
+                             max_distance_km=cfg["resource"]["max_distance_km"])
+        except ValueError as exc:
+            problems.append(Problem(label, i + 2, "latitude", f"site {s.site_id}: {exc}"))
+            continue
+        poa[i] = w.poa_wm2
+        tc[i] = w.cell_temp_c
+        annual_poa = w.poa_wm2.sum(axis=1) / 1000.0
+        rows.append({
+            "site_id": s.site_id, "climate_cell_lat": w.cell.latitude_deg, "climate_cell_lon": w.cell.longitude_deg,
+            "climate_cell_distance_km": w.cell.distance_km, "utc_offset_h": w.utc_offset_hours,
+            "tilt_deg": w.tilt_deg, "azimuth_deg": w.azimuth_deg, "elevation_m": w.elevation_m,
+            "temp_mean_c_used": temp_mean, "temp_mean_default": mean_default,
+            "design_temp_min_default": not np.isfinite(s.design_temp_min_c),
+            "ghi_kwh_m2_day": float(w.daily_ghi_kwh_m2.mean()),
+            "poa_kwh_m2_year_mean": float(annual_poa.mean()), "poa_kwh_m2_year_min": float(annual_poa.min()),
+            "worst_month_ghi_kwh_m2_day": _worst_month(w.daily_ghi_kwh_m2),
+        })
+    if problems:
+        raise InputError(problems)
+    return Weather(poa, tc, pd.DataFrame(rows))
+
+
+def _worst_month(daily: np.ndarray) -> float:
+    days = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31])
+    month = np.repeat(np.arange(12), days)
+    means = np.array([daily[:, month == m].mean() for m in range(12)])
+    return float(means.min())
+
+
+def _design_quantile(values: np.ndarray, q: float) -> np.ndarray:
+    """Value in the design weather year: the q-quantile across years (last axis)."""
+    return np.quantile(values, q, axis=-1, method="higher")
+
+
+def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Which (unit, kit[, block count]) options to simulate, and which were screened out and why."""
+    loss = cfg["pv"]["losses_fraction"]
+    yield_kwh_per_wp = weather.poa_wm2.sum(axis=2).max(axis=1) / 1000.0 / 1000.0 * (1 - loss)  # best year, kWh/Wp
+    mean_yield = weather.poa_wm2.sum(axis=2).mean(axis=1) / 1000.0 / 1000.0 * (1 - loss)
+    target = cfg["program"]["reliability_target"]
+    rows, screened = [], []
+    smallest = kits.groupby("scheme").array_wp.min()
+    for u_idx, u in enumerate(units.itertuples(index=False)):
+        s_idx = u.site_index
+        demand_kwh = design.daily_energy_wh.iat[u_idx] * 365 / 1000.0
+        peak = design.peak_power_w.iat[u_idx]
+        site_target = sites["reliability_target"].iat[s_idx]
+        site_target = target if not np.isfinite(site_target) else float(site_target)
+        for k_idx, k in enumerate(kits.itertuples(index=False)):
+            if k.scheme != u.scheme:
+                continue
+            best_kwh = k.array_wp * yield_kwh_per_wp[s_idx]
+            if u.scheme == "shs":
+                if peak > k.max_load_w:
+                    screened.append((u.unit_id, k.kit_id, 1, f"peak load {peak:.0f} W exceeds the kit's output rating {k.max_load_w:.0f} W"))
+                    continue
+                if best_kwh * 0.98 < demand_kwh * (1 - site_target):
+                    screened.append((u.unit_id, k.kit_id, 1, f"array yields {best_kwh:.0f} kWh/year in the best year, demand needs {demand_kwh * (1 - site_target):.0f}"))
+                    continue
+                if (k.array_wp * mean_yield[s_idx] > OVERSIZE_LIMIT * demand_kwh
+                        and k.array_wp > 2 * smallest[u.scheme]):
+                    continue  # oversized; not offered (the smallest kits always are)
+                rows.append((u_idx, k_idx, s_idx, 1, site_target))
+            else:
+                n_energy = demand_kwh / max(k.array_wp * mean_yield[s_idx], 1e-9)
+                n_peak = int(np.ceil(peak / k.max_load_w))
+                counts = sorted({max(1, n_peak, int(np.ceil(n_energy * f))) for f in BLOCK_COUNT_FACTORS})
+                for n in counts:
+                    rows.append((u_idx, k_idx, s_idx, n, site_target))
+    pairs = pd.DataFrame(rows, columns=["unit_idx", "kit_idx", "site_idx", "blocks", "target"])
+    return pairs, pd.DataFrame(screened, columns=["unit_id", "kit_id", "blocks", "reason"])
+
+
+def evaluate(pairs, metrics, units, design, kits, cfg) -> pd.DataFrame:
+    """Reliability and lifecycle cost of every simulated option."""
+    m = {name: metrics[:, :, j] for j, name in enumerate(dispatch.METRICS)}
+    q = cfg["program"]["target_confidence"]
+    demand = np.maximum(m["demand_wh"], 1e-9)
+    unmet_frac = m["unmet_wh"] / demand
+    k = kits.iloc[pairs.kit_idx.to_numpy()].reset_index(drop=True)
+    u = units.iloc[pairs.unit_idx.to_numpy()].reset_index(drop=True)
+    blocks = pairs.blocks.to_numpy(dtype=float)
+    mult = u["count"].to_numpy(dtype=float) * blocks  # kits or blocks bought for the unit
+    throughput = m["battery_discharge_wh"].mean(axis=1)
+    life = battery.service_life_years(throughput, k.battery_nominal_wh.to_numpy(), k.usable_dod.to_numpy(),
+                                      k.cycle_life_a.to_numpy(), k.cycle_life_b.to_numpy(),
+                                      k.calendar_life_years.to_numpy())
+    e = cfg["economics"]
+    p = cfg["program"]
+    lcc_one = economics.lifecycle_cost(
+        k.capex_usd.to_numpy(), k.battery_capex_usd.to_numpy(), life, k.controller_capex_usd.to_numpy(),
+        k.inverter_capex_usd.to_numpy(), horizon_years=p["horizon_years"], rate=p["discount_rate"],
+        om_fraction=e["om_fraction_per_year"], controller_life_years=e["controller_life_years"],
+        inverter_life_years=e["inverter_life_years"])
+    served_kwh_year = m["served_wh"].mean(axis=1) / 1000.0 * blocks
+    out = pd.DataFrame({
+        "unit_id": u.unit_id, "site_id": u.site_id, "scheme": u.scheme, "group": u.group,
+        "count": u["count"], "kit_id": k.kit_id, "blocks": pairs.blocks, "target": pairs.target,
+        "unmet_fraction_design": _design_quantile(unmet_frac, q),
+        "unmet_fraction_mean": unmet_frac.mean(axis=1),
+        "unmet_fraction_worst": unmet_frac.max(axis=1),
+        "lolp_design": _design_quantile(m["unmet_hours"] / HOURS_PER_YEAR, q),
+        "disconnected_hours_design": _design_quantile(m["disconnected_hours"], q),
+        "days_full_service_design": np.quantile(m["days_full_service"], 1 - q, axis=1, method="lower"),
+        "evening_served_fraction_design": np.quantile(m["evening_served_wh"] / np.maximum(m["evening_demand_wh"], 1e-9), 1 - q, axis=1, method="lower"),
+        "pv_spilled_fraction_mean": (m["pv_spilled_wh"] / np.maximum(m["pv_bus_wh"], 1e-9)).mean(axis=1),
+        "soc_min": m["soc_min"].min(axis=1), "soc_mean": m["soc_mean"].mean(axis=1),
+        "battery_cycles_per_year": throughput / k.battery_nominal_wh.to_numpy(),
+        "battery_life_years": life,
+        "served_kwh_year_per_kit": served_kwh_year,
+        "capex_usd": k.capex_usd.to_numpy() * mult,
+        "lifecycle_cost_usd": lcc_one * mult,
+        "balance_residual_wh": np.abs(m["balance_residual_wh"]).max(axis=1),
+    })
+    out["feasible"] = out.unmet_fraction_design <= out.target + 1e-12
+    out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
+        lcc_one * blocks, served_kwh_year, p["horizon_years"], p["discount_rate"])
+    out["pair"] = np.arange(len(out))
+    return out
+
+
+def _best_block_counts(ev: pd.DataFrame) -> pd.DataFrame:
+    """Per (minigrid unit, block type): the cheapest feasible block count."""
+    mg = ev[(ev.scheme == "minigrid") & ev.feasible]
+    return mg.loc[mg.groupby(["unit_id", "kit_id"]).lifecycle_cost_usd.idxmin()]
+
+
+def catalogue_options(ev: pd.DataFrame) -> pd.DataFrame:
+    """Feasible options for the integer program: SHS pairs and the best block count per block type."""
+    shs = ev[(ev.scheme == "shs") & ev.feasible]
+    return pd.concat([shs, _best_block_counts(ev)], ignore_index=True).rename(columns={"lifecycle_cost_usd": "cost_usd"})
+
+
+def explain_unserved(units, ev, screened, catalogues, options) -> pd.DataFrame:
+    """Why each unit without a kit has none, and the nearest option."""
+    rows = []
+    for u in units.itertuples(index=False):
+        res = catalogues[u.scheme]
+        kit = res.assignment.get(u.unit_id, "")
+        if kit:
+            continue
+        mine = ev[ev.unit_id == u.unit_id]
+        if (options.unit_id == u.unit_id).any():
+            reason = f"feasible kits exist, but none among the {len(res.chosen_kits)} catalogue types"
+            near = options[options.unit_id == u.unit_id].sort_values("cost_usd").iloc[0]
+            rows.append((u.unit_id, u.site_id, u.scheme, u.group, u.count, reason, near.kit_id, near.unmet_fraction_design))
+            continue
+        if not mine.empty:
+            near = mine.sort_values("unmet_fraction_design").iloc[0]
+            reason = (f"no candidate meets the target: best is {near.kit_id} with unmet energy "
+                      f"{near.unmet_fraction_design:.1%} in the design year (target {near.target:.1%})")
+            rows.append((u.unit_id, u.site_id, u.scheme, u.group, u.count, reason, near.kit_id, near.unmet_fraction_design))
+        else:
+            s = screened[screened.unit_id == u.unit_id]
+            reason = "no candidate kit fits: " + (s.reason.iloc[-1] if not s.empty else "no candidate of this scheme")
+            rows.append((u.unit_id, u.site_id, u.scheme, u.group, u.count, reason, "", np.nan))
+    return pd.DataFrame(rows, columns=["unit_id", "site_id", "scheme", "group", "count", "reason",
+                                       "nearest_kit_id", "nearest_unmet_fraction_design"])
+
+
+def compare(ev, options, units, catalogues, cfg) -> pd.DataFrame:
+    """The plan beside a custom best kit per unit and a single kit type per scheme."""
+    rows = []
+    for scheme, res in catalogues.items():
+        sch_units = units[units.scheme == scheme].unit_id.tolist()
+        if not sch_units:
+            continue
+        opts = options[options.scheme == scheme]
+        plan = opts.merge(res.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
+        custom = custom_best(opts) if not opts.empty else opts
+        one = optimise_catalogue(opts[["unit_id", "kit_id", "cost_usd"]], sch_units, max_types=1,
+                                 cost_per_type_usd=cfg["catalogue"]["cost_per_kit_type_usd"],
+                                 solver=cfg["catalogue"]["solver"], time_limit_s=cfg["catalogue"]["time_limit_s"])
+        single = opts.merge(one.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
+        for name, sel, ntypes in (("plan (standard catalogue)", plan, len(res.chosen_kits)),
+                                  ("custom best kit per unit", custom, custom.kit_id.nunique() if len(custom) else 0),
+                                  ("one kit type for all", single, 1 if len(single) else 0)):
+            rows.append({
+                "scheme": scheme, "design": name, "kit types": ntypes,
+                "units served": int(len(sel)), "units in scheme": len(sch_units),
+                "capex (USD)": float(sel.capex_usd.sum()), "lifecycle cost (USD)": float(sel.cost_usd.sum()),
+                "mean unmet energy, design year (%)": float(100 * np.average(sel.unmet_fraction_design, weights=sel["count"])) if len(sel) else np.nan,
+            })
+    return pd.DataFrame(rows)
+
+
+def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None) -> PlanResult:
+    """Plan a program end to end; see the module docstring."""
+    tracker = tracker or _Quiet()
+    timings: dict[str, float] = {}
+    warnings: list[str] = []
+    t = time.perf_counter()
+
+    tracker.stage("demand")
+    units = service_units(sites)
+    d = cfg["demand"]
+    loads, design = unit_loads(sites, units, seed=cfg["program"]["seed"], household_sd=d["household_day_to_day_sd"],
+                               common_sd=d["common_day_to_day_sd"], distribution_losses=d["minigrid_distribution_losses"])
+    units = pd.concat([units, design], axis=1)
+    timings["demand"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    tracker.stage("weather")
+    weather = build_weather(sites, cfg, tracker)
+    timings["weather"] = time.perf_counter() - t
+    n_default = int(weather.info.temp_mean_default.sum())
+    if n_default:
+        ids = ", ".join(weather.info.site_id[weather.info.temp_mean_default].head(10))
+        warnings.append(f"{n_default} site(s) have no temp_mean_c; the program default "
+                        f"{cfg['temperature']['default_mean_c']} degC was used ({ids}{', ...' if n_default > 10 else ''}).")
+    far = weather.info[weather.info.climate_cell_distance_km > FAR_CELL_KM]
+    for r in far.itertuples(index=False):
+        warnings.append(f"site {r.site_id}: nearest solar resource cell is {r.climate_cell_distance_km:.0f} km away.")
+
+    t = time.perf_counter()
+    tracker.stage("kits")
+    mins = sites["design_temp_min_c"].to_numpy(dtype=float)
+    cold = float(np.nanmin(mins)) if np.isfinite(mins).any() else cfg["temperature"]["default_min_c"]
+    if not np.isfinite(mins).all():
+        cold = min(cold, cfg["temperature"]["default_min_c"])
+    s = cfg["system"]
+    cond = DesignConditions(cold_ambient_c=cold, hot_cell_c=s["design_cell_temp_hot_c"])
+    kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
+    params = kernel_parameters(kits, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"], pv_losses_fraction=cfg["pv"]["losses_fraction"])
+    pairs, screened = build_pairs(units, design, kits, weather, sites, cfg)
+    timings["kits"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    tracker.stage(f"dispatch ({len(pairs)} options x {cfg['program']['weather_years']} years)")
+    metrics = simulate_chunked(weather, loads, params, pairs, tracker)
+    timings["dispatch"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    tracker.stage("catalogue")
+    ev = evaluate(pairs, metrics, units, design, kits, cfg)
+    options = catalogue_options(ev)
+    catalogues = {}
+    c = cfg["catalogue"]
+    for scheme in ("shs", "minigrid"):
+        scheme_units = units[units.scheme == scheme].unit_id.tolist()
+        catalogues[scheme] = optimise_catalogue(
+            options[options.scheme == scheme][["unit_id", "kit_id", "cost_usd"]], scheme_units,
+            max_types=c[f"max_kit_types_{scheme}"], cost_per_type_usd=c["cost_per_kit_type_usd"],
+            solver=c["solver"], time_limit_s=c["time_limit_s"])
+    unserved = explain_unserved(units, ev, screened, catalogues, options)
+    comparisons = compare(ev, options, units, catalogues, cfg)
+    timings["catalogue"] = time.perf_counter() - t
+    for scheme, res in catalogues.items():
+        if res.gap > 0.01:
+            warnings.append(f"{scheme} catalogue: gap to the LP bound is {res.gap:.1%} ({res.status}).")
+    if len(unserved):
+        warnings.append(f"{len(unserved)} service unit(s) have no kit; see the 'unserved' table for reasons.")
+
+    result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=catalogues,
+                        comparisons=comparisons, unserved=unserved, weather=weather, loads_w=loads,
+                        warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
+    result.traces = representative_traces(result, params)
+    return result
+
+
+def simulate_chunked(weather: Weather, loads, params, pairs: pd.DataFrame, tracker, chunk: int = 4000) -> np.ndarray:
+    """Run the kernel over the option list in chunks (progress and bounded peak memory)."""
+    n = len(pairs)
+    out = np.zeros((n, weather.poa_wm2.shape[1], dispatch.N_METRICS))
+    starts = range(0, n, chunk)
+    for a in tracker.wrap(starts, len(starts), "dispatch"):
+        b = min(a + chunk, n)
+        sl = pairs.iloc[a:b]
+        out[a:b] = dispatch.simulate_pairs(
+            weather.poa_wm2, weather.cell_temp_c, loads, params,
+            sl.site_idx.to_numpy(np.int64), sl.unit_idx.to_numpy(np.int64), sl.kit_idx.to_numpy(np.int64),
+            sl.blocks.to_numpy(np.float64))
+    return out
+
+
+def assigned_options(result: PlanResult) -> pd.DataFrame:
+    """The evaluation row of the option each unit was given (units without a kit excluded)."""
+    opts = catalogue_options(result.evaluations)
+    parts = []
+    for scheme, res in result.catalogues.items():
+        a = res.assignment[res.assignment != ""].rename("kit_id").reset_index()
+        parts.append(opts.merge(a, on=["unit_id", "kit_id"]))
+    return pd.concat(parts, ignore_index=True) if parts else opts.iloc[0:0]
+
+
+def representative_traces(result: PlanResult, params: np.ndarray) -> dict[str, dict]:
+    """A year of state of charge at a median site per scheme, in its design weather year."""
+    out = {}
+    chosen = assigned_options(result)
+    ev = result.evaluations
+    for scheme in ("shs", "minigrid"):
+        sel = chosen[chosen.scheme == scheme]
+        if sel.empty:
+            continue
+        row = sel.iloc[(sel.unmet_fraction_design - sel.unmet_fraction_design.median()).abs().argsort().iloc[0]]
+        pair = ev.loc[row.pair]
+        u_idx = int(result.units.index[result.units.unit_id == row.unit_id][0])
+        k_idx = int(result.kits.index[result.kits.kit_id == row.kit_id][0])
+        s_idx = int(result.units.site_index.iat[u_idx])
+        years = result.weather.poa_wm2.shape[1]
+        # the design year is the year whose unmet fraction is the design quantile
+        unmet = []
+        for y in range(years):
+            tr = dispatch.simulate_trace(result.weather.poa_wm2[s_idx, y], result.weather.cell_temp_c[s_idx, y],
+                                         result.loads_w[u_idx], params[k_idx], float(pair.blocks))
+            unmet.append((tr["load_w"].sum() - tr["served_w"].sum(), y, tr))
+        unmet.sort(key=lambda t: t[0])
+        q = result.config["program"]["target_confidence"]
+        _, y, tr = unmet[min(int(np.ceil(q * years)) - 1, years - 1)]
+        tr.update(unit_id=row.unit_id, kit_id=row.kit_id, weather_year=y, blocks=int(pair.blocks))
+        out[scheme] = tr
+    return out
