@@ -99,7 +99,7 @@ TIER_APPLIANCES: dict[int, list[dict]] = {
         _appliance("refrigerator 150 W", 150.0, _FRIDGE),
         _appliance("washing machine 500 W", 500.0, _hours((10, 11))),
         _appliance("air conditioner 1200 W", 1200.0, _hours((13, 16), (21, 23))),
-        _appliance("electric cooking 1500 W", 1500.0, _hours((18, 19), (7, 7.5))),
+        _appliance("electric cooking 2000 W", 2000.0, _hours((18, 19), (7, 7.5))),
     ],
 }
 

@@ -107,7 +107,7 @@ def make_sites(seed: int = SEED) -> pd.DataFrame:
             if minigrid:
                 # log-uniform between 40 and 400 households: many small grids, a few large
                 total = int(round(np.exp(rng.uniform(np.log(40), np.log(400)))))
-                tiers = split_households(rng, total, [0.30, 0.30, 0.22, 0.12, 0.06])
+                tiers = split_households(rng, total, [0.38, 0.34, 0.20, 0.06, 0.02])
                 productive = round(float(rng.uniform(5, 40)), 1) if rng.random() < 0.6 else 0.0
                 health_posts = int(rng.random() < 0.45)
                 schools = int(rng.integers(0, 3))

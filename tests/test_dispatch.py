@@ -1,0 +1,135 @@
+import numpy as np
+import pytest
+
+from fleet import dispatch
+from fleet.dispatch import (P_BCH, P_CEFF, P_CMAX, P_CSELF, P_ENOM, P_ETAC, P_ETAD, P_LVD, P_LVR, P_MAXLOAD,
+                            P_SD, simulate_pairs, simulate_trace)
+
+
+
+def clear_days(peak_wm2=900.0, days=365):
+    """A plain sunny-day irradiance shape on the local clock (test input, not a check value)."""
+    h = np.arange(days * 24) % 24
+    return (np.clip(np.sin((h + 0.5 - 6.0) / 12.0 * np.pi), 0, None) * peak_wm2).astype(np.float32)
+
+
+def _kit(kits, kit_id):
+    k = kits[0]
+    return int(k.index[k.kit_id == kit_id][0])
+
+
+def _dc_pwm_kit(kits):
+    k = kits[0]
+    sel = k[(k.scheme == "shs") & (k.topology == "dc") & (k.controller_kind == "pwm") & (k.chemistry == "lead_acid")]
+    return int(sel.index[0])
+
+
+def test_energy_balance_closes_every_hour(kits, params):
+    # source: conservation of energy; every flow of the hour is accounted for
+    k = kits[0]
+    for idx in (_dc_pwm_kit(kits), int(k.index[(k.scheme == "minigrid")][0])):
+        p = params[idx]
+        poa = clear_days(700.0) * np.tile(np.r_[np.ones(5), np.full(3, 0.15)], 46)[:365].repeat(24)
+        tc = np.full(8760, 40.0, np.float32)
+        load = np.tile(np.r_[np.full(18, 0.2), np.full(5, 1.0), [0.2]], 365).astype(np.float32) * p[P_ENOM] / 20
+        tr = simulate_trace(poa, tc, load, p)
+        assert np.allclose(tr["pv_bus_w"], tr["direct_w"] + tr["charge_w"] + tr["spill_w"], atol=1e-6)
+        assert np.allclose(tr["direct_w"] + tr["discharge_w"],
+                           tr["served_w"] + tr["inverter_loss_w"] + tr["self_served_w"], atol=1e-6)
+        e = np.r_[tr["initial_soc"], tr["soc"]] * p[P_ENOM]
+        flows = tr["charge_w"] * p[P_ETAC] - tr["discharge_w"] / p[P_ETAD] - tr["self_discharge_w"]
+        assert np.allclose(np.diff(e), flows, atol=1e-6)
+        assert (tr["served_w"] <= tr["load_w"] + 1e-9).all()
+        assert (tr["spill_w"] >= -1e-9).all() and (tr["discharge_w"] >= -1e-9).all()
+
+
+def test_days_of_autonomy_without_sun(kits, params):
+    # source: IEEE 1562-2021 clause 6; a full battery with no sun carries the load for usable Wh x efficiency / load W
+    idx = _dc_pwm_kit(kits)
+    p = params[idx].copy()
+    p[P_SD] = 0.0
+    load_w = 0.01 * p[P_ENOM]
+    poa = np.zeros(8760, np.float32)
+    poa[-dispatch.WARMUP_HOURS:] = clear_days(1000.0)[-dispatch.WARMUP_HOURS:]  # sunny warm-up fills it
+    poa[-30 * 24:] = np.where(np.arange(30 * 24) < 29 * 24, poa[-30 * 24:], 0.0)  # last warm-up day dark
+    tr = simulate_trace(poa, np.full(8760, 25, np.float32), np.full(8760, load_w, np.float32), p)
+    usable = (tr["initial_soc"] - p[P_LVD]) * p[P_ENOM]
+    first_off = int(np.argmax(tr["connected"] < 0.5))
+    served_before_off = tr["served_w"][:first_off].sum()
+    assert served_before_off == pytest.approx(usable * p[P_ETAD] * load_w / (load_w + p[P_CSELF]), rel=0.02)
+    assert first_off == pytest.approx(usable * p[P_ETAD] / (load_w + p[P_CSELF]), abs=1.01)
+    assert tr["served_w"][first_off:first_off + 24].sum() == 0.0  # stays off without sun
+
+
+def test_load_stays_off_until_the_reconnect_state_of_charge(kits, params):
+    # common practice: low-voltage disconnect with reconnect hysteresis prevents on/off cycling
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    poa = clear_days(250.0)
+    load = np.full(8760, 0.04 * p[P_ENOM], np.float32)
+    tr = simulate_trace(poa, np.full(8760, 30, np.float32), load, p)
+    on = tr["connected"] > 0.5
+    soc_before = np.r_[tr["initial_soc"], tr["soc"][:-1]]
+    went_on = np.flatnonzero(on[1:] & ~on[:-1]) + 1
+    went_off = np.flatnonzero(~on[1:] & on[:-1]) + 1
+    assert len(went_off) > 3 and len(went_on) > 3
+    assert (soc_before[went_on] >= p[P_LVR] - 1e-9).all()
+    assert (soc_before[went_off] <= p[P_LVD] + 0.05).all()
+    assert (tr["soc"] >= p[P_LVD] - 0.02).all()  # only self-consumption goes below the disconnect level
+
+
+def test_charge_never_exceeds_controller_or_battery_limits(kits, params):
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    tr = simulate_trace(clear_days(1100.0), np.full(8760, 10, np.float32), np.full(8760, 1.0, np.float32), p)
+    assert tr["pv_bus_w"].max() <= p[P_CMAX] + 1e-9
+    assert tr["charge_w"].max() <= p[P_BCH] + 1e-9
+
+
+def test_pwm_array_harvest_is_limited_by_battery_voltage(kits, params):
+    # common practice: a 36-cell module on a 12 V battery through PWM delivers roughly
+    # Imp x battery voltage, about 70-75 % of its maximum power
+    k = kits[0]
+    pwm = int(k.index[(k.kit_id.str.startswith("S12-1x100W")) & (k.controller_kind == "pwm")][0])
+    p = params[pwm]
+    tr = simulate_trace(np.full(8760, 1000, np.float32), np.full(8760, 25, np.float32), np.zeros(8760, np.float32), p)
+    ratio = tr["pv_bus_w"][0] / (tr["pv_mpp_w"][0] * p[P_CEFF])
+    assert ratio == pytest.approx(5.45 * 13.2 / 100.0, rel=1e-6)
+    assert 0.65 < ratio < 0.80
+
+
+def test_output_rating_caps_the_served_load(kits, params):
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    load = np.full(8760, 2 * p[P_MAXLOAD], np.float32)
+    tr = simulate_trace(clear_days(1000.0), np.full(8760, 25, np.float32), load, p)
+    assert tr["served_w"].max() <= p[P_MAXLOAD] + 1e-9
+
+
+def test_batch_kernel_matches_the_hourly_trace(kits, params):
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    poa = clear_days(600.0)
+    load = np.tile(np.r_[np.full(18, 2.0), np.full(5, 12.0), [2.0]], 365).astype(np.float32)
+    out = simulate_pairs(poa[None, None, :], np.full((1, 1, 8760), 30, np.float32), load[None, :], params,
+                         np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([idx]), np.ones(1))
+    m = dict(zip(dispatch.METRICS, out[0, 0]))
+    tr = simulate_trace(poa, np.full(8760, 30, np.float32), load, p)
+    assert m["served_wh"] == pytest.approx(tr["served_w"].sum(), rel=1e-9)
+    assert m["unmet_wh"] == pytest.approx(tr["load_w"].sum() - tr["served_w"].sum(), rel=1e-6, abs=1e-6)
+    assert m["pv_spilled_wh"] == pytest.approx(tr["spill_w"].sum(), rel=1e-9)
+    assert m["demand_wh"] == pytest.approx(load.sum(), rel=1e-6)
+    assert abs(m["balance_residual_wh"]) < 1e-6
+
+
+def test_n_blocks_sharing_a_load_equal_one_block_with_a_share():
+    # identical blocks in parallel with an equal split behave as one block with 1/N of the load
+    p = np.zeros((1, 23))
+    p[0] = [3000, 1, 0, 0.0005, -0.004, 52.8, 0.97, 5000, 2, 10000, 0.15, 0.97, 0.98, 5000, 10000, 0, 0.95, 0.1,
+            5000, 0.95, 30, 0.3, 0.14]
+    poa = clear_days(800.0)[None, None, :]
+    tc = np.full_like(poa, 30)
+    load = np.full((1, 8760), 2400.0, np.float32)
+    a = simulate_pairs(poa, tc, load, p, np.zeros(1, np.int64), np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([3.0]))
+    b = simulate_pairs(poa, tc, load / 3, p, np.zeros(1, np.int64), np.zeros(1, np.int64), np.zeros(1, np.int64), np.ones(1))
+    assert np.allclose(a, b, rtol=1e-5)
