@@ -55,7 +55,10 @@ def _solver(name: str, time_limit_s: float, msg: bool = False):
         if not s.available():
             raise RuntimeError("the HiGHS solver is not installed (pip install highspy)")
         return s
-    return pulp.PULP_CBC_CMD(msg=msg, timeLimit=time_limit_s)
+    s = pulp.COIN_CMD(msg=msg, timeLimit=time_limit_s)
+    if not s.available():
+        raise RuntimeError("the CBC solver is not installed (pip install 'pulp[cbc]')")
+    return s
 
 
 def merge_identical_units(options: pd.DataFrame) -> tuple[pd.DataFrame, pd.Series]:
@@ -108,13 +111,13 @@ def optimise_catalogue(options: pd.DataFrame, all_units: list[str], *, max_types
     def build(relaxed: bool):
         cat = pulp.LpContinuous if relaxed else pulp.LpBinary
         prob = pulp.LpProblem("catalogue", pulp.LpMinimize)
-        y = {k: pulp.LpVariable(f"y_{i}", 0, 1, cat) for i, k in enumerate(kits)}
+        y = {k: prob.add_variable(f"y_{i}", 0, 1, cat=cat) for i, k in enumerate(kits)}
         x = {}
         for i, r in enumerate(merged.itertuples(index=False)):
-            x[(r.case, r.kit_id)] = (pulp.LpVariable(f"x_{i}", 0, 1, cat), r.cost_usd * r.weight)
+            x[(r.case, r.kit_id)] = (prob.add_variable(f"x_{i}", 0, 1, cat=cat), r.cost_usd * r.weight)
         cases = sorted(set(merged.case))
         w = merged.groupby("case").weight.first()
-        z = {c: pulp.LpVariable(f"z_{c}", 0, 1, cat) for c in cases}
+        z = {c: prob.add_variable(f"z_{c}", 0, 1, cat=cat) for c in cases}
         prob += (pulp.lpSum(v * c for v, c in x.values()) + cost_per_type_usd * pulp.lpSum(y.values())
                  + big_m * pulp.lpSum(z[c] * w[c] for c in cases))
         by_case: dict[int, list] = {}

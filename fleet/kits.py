@@ -42,8 +42,8 @@ MPPT_HEADROOM_V = 2.0  # common practice
 NEC_690_8_FACTOR = 1.25
 MPPT_OVERSIZE = 1.2
 LFP_MAX_PARALLEL_MODULES = 8  # rack modules with BMS communication, common practice
-SHS_ARRAY_LADDER = (1, 2, 3, 4, 6)
-SHS_MAX_ARRAY_W = 1500.0
+SHS_ARRAY_LADDER = (1, 2, 3, 4, 6, 8)
+SHS_MAX_ARRAY_W = 2000.0
 # A household's appliances peak well above its array power: the inverter of an
 # AC kit is the smallest rated at >= 1.5 W per Wp (an assumption of ours).
 SHS_INVERTER_PER_WP = 1.5

@@ -1,0 +1,174 @@
+"""The whole run through the command line, on a small slice of the demo program."""
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import openpyxl
+import pandas as pd
+import pytest
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "sites" / "demo_sites.csv"
+
+
+def run_fleet(*args, cwd=None):
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    return subprocess.run([sys.executable, "-m", "fleet", *map(str, args)], capture_output=True, text=True,
+                          cwd=cwd, env=env, timeout=900)
+
+
+@pytest.fixture(scope="module")
+def small_program(tmp_path_factory):
+    d = tmp_path_factory.mktemp("prog")
+    demo = pd.read_csv(DEMO)
+    pick = pd.concat([demo[(demo.site_id.str[:2] == r) & (demo.scheme == s)].head(n)
+                      for r in ("EQ", "SA") for s, n in (("shs", 3), ("minigrid", 1))])
+    pick.loc[pick.index[0], "site_name"] = "=HYPERLINK(\"x\")"  # user text must never become a formula
+    sites = d / "sites.csv"
+    pick.to_csv(sites, index=False)
+    cfg = d / "program.toml"
+    cfg.write_text("[program]\nweather_years = 2\n\n[catalogue]\nmax_kit_types_shs = 2\nmax_kit_types_minigrid = 1\n")
+    out = d / "run"
+    res = run_fleet("plan", sites, "--config", cfg, "--out", out, "--quiet")
+    return {"sites": sites, "config": cfg, "out": out, "result": res, "table": pick}
+
+
+def test_plan_writes_all_five_outputs(small_program):
+    res = small_program["result"]
+    assert res.returncode == 0, res.stderr
+    for name in ("bill_of_materials.xlsx", "deployment_summary.xlsx", "deployment_summary.html", "sites.gpkg", "run.json"):
+        assert (small_program["out"] / name).is_file()
+        assert str(small_program["out"] / name) in res.stdout
+    assert not any(p.name.startswith(".") for p in small_program["out"].parent.iterdir())
+
+
+def test_bill_of_materials_totals_equal_their_parts(small_program):
+    from fleet.report.excel import BY_KIT_HEADER_ROW
+    path = small_program["out"] / "bill_of_materials.xlsx"
+    df = pd.read_excel(path, sheet_name="by_kit", header=BY_KIT_HEADER_ROW)
+    items = df[df.line == "item"]
+    ext = "extended price (USD)"
+    assert np.allclose(items[ext], items["total quantity (unit as listed)"] * items["unit price (USD)"])
+    for kit, g in items.groupby("kit_id"):
+        sub = df[(df.line == "kit subtotal") & (df.kit_id == kit)][ext]
+        assert sub.iloc[0] == pytest.approx(g[ext].sum())
+    assert df[df.line == "grand total"][ext].iloc[0] == pytest.approx(items[ext].sum())
+    wb = openpyxl.load_workbook(path)
+    ws = wb["by_kit"]
+    assert any(c.data_type == "f" for row in ws.iter_rows() for c in row)  # live formulas are there
+
+
+def test_every_site_has_a_kit_or_a_reason(small_program):
+    sites = pd.read_excel(small_program["out"] / "deployment_summary.xlsx", sheet_name="sites")
+    assert len(sites) == len(small_program["table"])
+    has_kit = sites["kits"].fillna("").astype(str) != ""
+    has_reason = sites["not served (reason)"].fillna("").astype(str) != ""
+    assert (has_kit | has_reason).all()
+
+
+def test_program_totals_equal_the_sum_over_sites(small_program):
+    book = pd.read_excel(small_program["out"] / "deployment_summary.xlsx", sheet_name=None)
+    prog = book["program"].set_index("metric")["value"]
+    sites = book["sites"]
+    assert float(prog["capex"]) == pytest.approx(sites["capex (USD)"].sum(), rel=1e-9)
+    assert float(prog["lifecycle cost (net present)"]) == pytest.approx(sites["lifecycle cost (USD)"].sum(), rel=1e-9)
+    assert float(prog["array"]) == pytest.approx(sites["array (kWp)"].sum(), rel=1e-9)
+    dist = book["by_district"]
+    assert dist["capex (USD)"].sum() == pytest.approx(sites["capex (USD)"].sum(), rel=1e-9)
+    assert dist["sites"].sum() == len(sites)
+
+
+def test_bom_total_equals_program_capex(small_program):
+    from fleet.report.excel import BY_KIT_HEADER_ROW
+    bom = pd.read_excel(small_program["out"] / "bill_of_materials.xlsx", sheet_name="by_kit", header=BY_KIT_HEADER_ROW)
+    items = bom[bom.line == "item"]
+    no_spares = (items["quantity per kit (unit as listed)"] * items["kits (count)"] * items["unit price (USD)"]).sum()
+    prog = pd.read_excel(small_program["out"] / "deployment_summary.xlsx", sheet_name="program").set_index("metric")["value"]
+    assert no_spares == pytest.approx(float(prog["capex"]), rel=1e-9)
+
+
+def test_user_text_is_never_a_formula(small_program):
+    wb = openpyxl.load_workbook(small_program["out"] / "deployment_summary.xlsx")
+    ws = wb["sites"]
+    cells = [c for row in ws.iter_rows() for c in row if isinstance(c.value, str) and "HYPERLINK" in c.value]
+    assert cells and all(c.data_type == "s" for c in cells)
+
+
+def test_site_layer_is_a_geopackage_with_plan_columns(small_program):
+    layer = gpd.read_file(small_program["out"] / "sites.gpkg", layer="sites")
+    assert len(layer) == len(small_program["table"])
+    assert layer.crs.to_epsg() == 4326
+    assert {"plan_kits", "plan_capex_usd", "plan_unmet_fraction_design"} <= set(layer.columns)
+    assert "survey_round" in layer.columns  # unknown columns carried through
+
+
+def test_run_record_names_inputs_with_hashes(small_program):
+    rec = json.loads((small_program["out"] / "run.json").read_text())
+    assert set(rec["inputs"]) == {"sites", "components", "config"}
+    assert all(len(v["sha256"]) == 64 for v in rec["inputs"].values())
+    assert rec["seed"] == 20261201
+    assert rec["catalogue"]["shs"]["status"] in ("Optimal", "time limit reached, best plan found")
+
+
+def test_an_existing_run_is_not_overwritten(small_program):
+    before = {p.name: p.stat().st_mtime_ns for p in small_program["out"].iterdir()}
+    res = run_fleet("plan", small_program["sites"], "--config", small_program["config"], "--out", small_program["out"])
+    assert res.returncode == 2
+    assert "already holds a run" in res.stderr
+    assert {p.name: p.stat().st_mtime_ns for p in small_program["out"].iterdir()} == before
+
+
+def test_a_failed_run_leaves_the_earlier_outputs_intact(small_program, tmp_path):
+    bad = tmp_path / "bad.csv"
+    bad.write_text("site_id,latitude,longitude,scheme\nA,95,30,shs\n")
+    before = {p.name: p.stat().st_mtime_ns for p in small_program["out"].iterdir()}
+    res = run_fleet("plan", bad, "--out", small_program["out"], "--overwrite")
+    assert res.returncode == 2
+    assert {p.name: p.stat().st_mtime_ns for p in small_program["out"].iterdir()} == before
+
+
+BAD_INPUTS = {
+    "missing column": ("site_id,latitude,scheme,households_t1\nA,1.0,shs,3\n", ["column 'longitude'"]),
+    "duplicate site_id": ("site_id,latitude,longitude,scheme,households_t1\nA,1,30,shs,3\nA,1.1,30,shs,3\n",
+                          ["row 3", "column 'site_id'"]),
+    "latitude out of range": ("site_id,latitude,longitude,scheme,households_t1\nA,95,30,shs,3\n",
+                              ["row 2", "column 'latitude'"]),
+    "non-numeric households": ("site_id,latitude,longitude,scheme,households_t1\nA,1,30,shs,abc\n",
+                               ["row 2", "column 'households_t1'"]),
+    "empty file": ("", ["empty"]),
+}
+
+
+@pytest.mark.parametrize("case", sorted(BAD_INPUTS))
+def test_bad_input_exits_2_naming_file_row_and_column(case, tmp_path):
+    text, expected = BAD_INPUTS[case]
+    f = tmp_path / "sites.csv"
+    f.write_text(text)
+    res = run_fleet("plan", f, "--out", tmp_path / "run")
+    assert res.returncode == 2
+    assert "Traceback" not in res.stderr
+    assert str(f) in res.stderr
+    for e in expected:
+        assert e in res.stderr.lower() or e in res.stderr
+    assert not (tmp_path / "run").exists()
+
+
+def test_all_problems_are_reported_at_once(tmp_path):
+    f = tmp_path / "sites.csv"
+    f.write_text("site_id,latitude,longitude,scheme,households_t1\nA,95,30,shs,3\nA,1,30,grid,x\n")
+    res = run_fleet("plan", f, "--out", tmp_path / "run")
+    assert res.returncode == 2
+    for e in ("column 'latitude'", "column 'scheme'", "column 'households_t1'", "column 'site_id'"):
+        assert e in res.stderr
+
+
+def test_help_explains_inputs_and_units():
+    res = run_fleet("plan", "--help")
+    assert res.returncode == 0
+    for word in ("households_t1", "WGS84", "kWh/day", "bill_of_materials.xlsx", "--components", "exit status"):
+        assert word in res.stdout
