@@ -124,9 +124,17 @@ def _worst_month(daily: np.ndarray) -> float:
     return float(means.min())
 
 
-def _design_quantile(values: np.ndarray, q: float) -> np.ndarray:
-    """Value in the design weather year: the q-quantile across years (last axis)."""
-    return np.quantile(values, q, axis=-1, method="higher")
+def _design_quantile(values: np.ndarray, q: float, worse: str = "high") -> np.ndarray:
+    """Value in the design weather year across years (last axis).
+
+    The empirical q-quantile (inverted CDF: the smallest value whose share of
+    years at or below it is at least q) of a metric where high is bad; for a
+    metric where low is bad (``worse="low"``) the mirror image, so that both
+    are read in the same bad year of ten when q = 0.9.
+    """
+    if worse == "high":
+        return np.quantile(values, q, axis=-1, method="inverted_cdf")
+    return -np.quantile(-values, q, axis=-1, method="inverted_cdf")
 
 
 def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame, pd.DataFrame]:
@@ -198,8 +206,8 @@ def evaluate(pairs, metrics, units, design, kits, cfg) -> pd.DataFrame:
         "unmet_fraction_worst": unmet_frac.max(axis=1),
         "lolp_design": _design_quantile(m["unmet_hours"] / HOURS_PER_YEAR, q),
         "disconnected_hours_design": _design_quantile(m["disconnected_hours"], q),
-        "days_full_service_design": np.quantile(m["days_full_service"], 1 - q, axis=1, method="lower"),
-        "evening_served_fraction_design": np.quantile(m["evening_served_wh"] / np.maximum(m["evening_demand_wh"], 1e-9), 1 - q, axis=1, method="lower"),
+        "days_full_service_design": _design_quantile(m["days_full_service"], q, worse="low"),
+        "evening_served_fraction_design": _design_quantile(m["evening_served_wh"] / np.maximum(m["evening_demand_wh"], 1e-9), q, worse="low"),
         "pv_spilled_fraction_mean": (m["pv_spilled_wh"] / np.maximum(m["pv_bus_wh"], 1e-9)).mean(axis=1),
         "soc_min": m["soc_min"].min(axis=1), "soc_mean": m["soc_mean"].mean(axis=1),
         "battery_cycles_per_year": throughput / k.battery_nominal_wh.to_numpy(),

@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import datetime as _dt
 import functools
+import warnings
 from dataclasses import dataclass
 from zoneinfo import ZoneInfo
 
@@ -428,8 +429,12 @@ def clear_sky_ghi(geometry, latitude, longitude, elevation_m):
        irradiances: description and validation", Solar Energy
        73(5):307-317, 2002.
     """
-    turbidity = pvlib.clearsky.lookup_linke_turbidity(
-        geometry.index, latitude, longitude)
+    with warnings.catch_warnings():
+        # pvlib's lookup uses an index attribute that pandas 3 deprecates;
+        # the values are unaffected, so keep the user's console clean
+        warnings.filterwarnings("ignore", message=".*dayofyear is deprecated.*")
+        turbidity = pvlib.clearsky.lookup_linke_turbidity(
+            geometry.index, latitude, longitude)
     airmass_relative = pvlib.atmosphere.get_relative_airmass(
         geometry["apparent_zenith"])
     airmass_absolute = pvlib.atmosphere.get_absolute_airmass(
