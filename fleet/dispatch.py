@@ -135,14 +135,20 @@ def _step(g, tc, load_w, p, e, on):
 
 
 @njit(cache=True)
-def _simulate_year(poa, tcell, load, scale, p, out):
-    enom = p[P_ENOM]
-    e = enom
+def _warm_up(poa, tcell, load, scale, p):
+    """State after running the year's last WARMUP_HOURS from full charge."""
+    e = p[P_ENOM]
     on = True
     for h in range(HOURS - WARMUP_HOURS, HOURS):
         r = _step(poa[h], tcell[h], load[h] / scale, p, e, on)
         e, on = r[0], r[1]
-    e_start = e
+    return e, on
+
+
+@njit(cache=True)
+def _simulate_year(poa, tcell, load, scale, p, out):
+    enom = p[P_ENOM]
+    e, on = _warm_up(poa, tcell, load, scale, p)
     for k in range(N_METRICS):
         out[k] = 0.0
     soc_min = 1.0
@@ -193,7 +199,7 @@ def _simulate_year(poa, tcell, load, scale, p, out):
             day_full = False
     out[16] = soc_min
     out[17] /= HOURS
-    out[19] = resid + 0.0 * e_start
+    out[19] = resid
 
 
 @njit(cache=True, parallel=True)
@@ -235,11 +241,7 @@ TRACE_FIELDS = ("soc", "connected", "pv_mpp_w", "pv_bus_w", "direct_w", "charge_
 @njit(cache=True)
 def _trace(poa, tcell, load, scale, p):
     enom = p[P_ENOM]
-    e = enom
-    on = True
-    for h in range(HOURS - WARMUP_HOURS, HOURS):
-        r = _step(poa[h], tcell[h], load[h] / scale, p, e, on)
-        e, on = r[0], r[1]
+    e, on = _warm_up(poa, tcell, load, scale, p)
     out = np.zeros((HOURS, 13))
     e0 = e
     for h in range(HOURS):

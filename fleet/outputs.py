@@ -19,16 +19,10 @@ import pandas as pd
 
 from .plan import PlanResult, assigned_options
 
+#: Cautions beyond the report writers' standard ones (fleet.report DEFAULT_CAUTIONS).
 CAUTIONS = [
-    "This plan is a planning estimate, not an installation design. Every system must be designed, installed and "
-    "inspected by qualified, licensed practitioners under the local electrical code, which prevails over anything here.",
-    "DC circuits can sustain arcs that do not self-extinguish: use DC-rated switches, breakers and fuses, and never "
-    "open a loaded DC circuit with a connector or an AC-rated device.",
-    "Protect every battery and every PV string with correctly rated fuses or breakers placed close to the source; "
-    "size conductors for ampacity and voltage drop under the local code.",
-    "Batteries store large energy: a short circuit can cause fire and burns. Lead-acid batteries release hydrogen while "
-    "charging: install them in ventilated enclosures away from ignition sources, with acid-resistant surfaces and eye "
-    "protection at hand. Lithium batteries need a battery management system and must not be charged below 0 degC.",
+    "Lithium batteries need a battery management system and must not be charged below 0 degC; a battery "
+    "short circuit can start a fire: fuse the battery close to its terminals.",
     "PV modules produce voltage whenever light falls on them; cover or isolate arrays before working on them.",
     "Component prices in the bundled demo library are invented; replace them with quotations before any decision.",
 ]
