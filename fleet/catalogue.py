@@ -55,10 +55,21 @@ def _solver(name: str, time_limit_s: float, msg: bool = False):
         if not s.available():
             raise RuntimeError("the HiGHS solver is not installed (pip install highspy)")
         return s
-    s = pulp.COIN_CMD(msg=msg, timeLimit=time_limit_s)
-    if not s.available():
-        raise RuntimeError("the CBC solver is not installed (pip install 'pulp[cbc]')")
-    return s
+    return pulp.COIN_CMD(path=_cbc_path(), msg=msg, timeLimit=time_limit_s)
+
+
+def _cbc_path() -> str:
+    """The CBC binary shipped by the ``cbcbox`` package (``pulp[cbc]``), found
+    without relying on the virtual environment being activated."""
+    try:
+        import cbcbox
+        return str(cbcbox.cbc_bin_path())
+    except (ImportError, AttributeError, OSError):
+        import shutil
+        found = shutil.which("cbc")
+        if found:
+            return found
+        raise RuntimeError("the CBC solver is not installed (pip install 'pulp[cbc]')") from None
 
 
 def merge_identical_units(options: pd.DataFrame) -> tuple[pd.DataFrame, pd.Series]:

@@ -7,6 +7,7 @@ Exit status: 0 success, 2 bad input (every problem listed), 1 unexpected error.
 from __future__ import annotations
 
 import argparse
+import os
 import sys
 import time
 from pathlib import Path
@@ -111,7 +112,8 @@ def _print_summary(result, paths, seconds: float) -> None:
     for metric in ("array", "battery (nominal)", "capex", "lifecycle cost (net present)", "cost per household (lifecycle)",
                    "unmet energy in the design weather year", "service units with no kit"):
         r = prog.loc[metric]
-        val = f"{r.value:,.1f}" if isinstance(r.value, float) else f"{r.value:,}"
+        v = float(r.value)
+        val = f"{v:,.0f}" if v.is_integer() else f"{v:,.1f}"
         lines.append(f"{metric:<42} {val:>14} {r.unit}")
     lines.append("")
     for p in paths.values():
@@ -153,6 +155,15 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("fleet: interrupted; no outputs were written", file=sys.stderr)
         return 130
+    except FileExistsError as exc:
+        print(f"fleet: {exc}", file=sys.stderr)
+        return 2
+    except Exception as exc:  # an environment problem or a bug: say so plainly, keep earlier outputs
+        if os.environ.get("FLEET_DEBUG"):
+            raise
+        print(f"fleet: unexpected error ({type(exc).__name__}): {exc}\n"
+              "no outputs were written; set FLEET_DEBUG=1 to see the traceback", file=sys.stderr)
+        return 1
 
 
 if __name__ == "__main__":

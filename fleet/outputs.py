@@ -196,7 +196,9 @@ def figures(result: PlanResult, tables: dict) -> dict:
     figs["Sites by main kit type"] = plots.site_map(layer.longitude.to_numpy(), layer.latitude.to_numpy(), lab.to_numpy(),
                                                      "Sites coloured by their main kit or block type")
     c = tables["_chosen"]
-    figs["Reliability of served units"] = plots.reliability_histogram(c.unmet_fraction_design.to_numpy(), result.config["program"]["reliability_target"])
+    figs["Reliability of served units"] = plots.reliability_histogram(
+        c.unmet_fraction_design.to_numpy(), result.config["program"]["reliability_target"],
+        title="Unmet energy per service unit in the design weather year", what="service units")
     for scheme, tr in result.traces.items():
         figs[f"State of charge at a typical {scheme} unit"] = plots.soc_trace(
             np.arange(len(tr["soc"])), tr["soc"], tr["connected"] < 0.5,

@@ -60,34 +60,56 @@ def site_map(longitude, latitude, labels, title: str = "Sites by kit type") -> F
     ok = np.isfinite(lon) & np.isfinite(lat)
     lon, lat, names = lon[ok], lat[ok], names[ok]
 
-    fig = _new_figure(7.5, 6.0)
-    ax = fig.add_subplot()
     # Most frequent kit first so that its colour and legend entry come first.
     kinds, counts = np.unique(names, return_counts=True) if len(names) else ([], [])
     order = [k for _, k in sorted(zip(-np.asarray(counts), kinds))]
     colours = _colours(len(order))
-    for i, kind in enumerate(order):
-        sel = names == kind
-        ax.scatter(lon[sel], lat[sel], s=18, color=colours[i], edgecolors="white",
-                   linewidths=0.4, label=f"{kind} ({int(sel.sum()):,})", zorder=2)
-    ax.set_xlabel("longitude (° east)")
-    ax.set_ylabel("latitude (° north)")
-    ax.set_title(title)
-    ax.grid(True, linewidth=0.4, alpha=0.5, zorder=0)
-    if len(lat):
-        mean_lat = float(np.clip(np.mean(lat), -80.0, 80.0))
-        ax.set_aspect(1.0 / math.cos(math.radians(mean_lat)), adjustable="datalim")
-    else:
-        ax.text(0.5, 0.5, "no sites with coordinates", ha="center", va="center",
-                transform=ax.transAxes)
+    groups = site_clusters(lon, lat)
+    fig = _new_figure(3.2 + 3.6 * max(len(groups), 1), 5.0)
+    axes = fig.subplots(1, max(len(groups), 1), squeeze=False)[0]
+    for ax, members in zip(axes, groups or [np.array([], dtype=int)]):
+        for i, kind in enumerate(order):
+            sel = members[names[members] == kind]
+            ax.scatter(lon[sel], lat[sel], s=18, color=colours[i], edgecolors="white",
+                       linewidths=0.4, label=f"{kind} ({int((names == kind).sum()):,})", zorder=2)
+        ax.set_xlabel("longitude (° east)")
+        ax.grid(True, linewidth=0.4, alpha=0.5, zorder=0)
+        if len(members):
+            mean_lat = float(np.clip(np.mean(lat[members]), -80.0, 80.0))
+            ax.set_aspect(1.0 / math.cos(math.radians(mean_lat)), adjustable="datalim")
+        else:
+            ax.text(0.5, 0.5, "no sites with coordinates", ha="center", va="center",
+                    transform=ax.transAxes)
+    axes[0].set_ylabel("latitude (° north)")
+    fig.suptitle(title)
     if order:
-        handles, texts = ax.get_legend_handles_labels()
+        seen = {}
+        for ax in axes:
+            for h, t in zip(*ax.get_legend_handles_labels()):
+                seen.setdefault(t, h)
+        texts, handles = list(seen), list(seen.values())
         if len(handles) > _MAX_LEGEND_ENTRIES:
             handles, texts = handles[:_MAX_LEGEND_ENTRIES], texts[:_MAX_LEGEND_ENTRIES]
             texts[-1] = texts[-1] + " …"
-        ax.legend(handles, texts, title="kit type (sites)", loc="upper left",
-                  bbox_to_anchor=(1.01, 1.0), fontsize="small", frameon=False)
+        axes[-1].legend(handles, texts, title="kit type (sites)", loc="upper left",
+                        bbox_to_anchor=(1.01, 1.0), fontsize="small", frameon=False)
     return fig
+
+
+def site_clusters(longitude, latitude, gap_deg: float = 5.0) -> list[np.ndarray]:
+    """Split sites into groups separated by more than ``gap_deg`` in longitude
+    or latitude, so that distant regions get a map panel each (indices into the inputs)."""
+    lon = np.asarray(longitude, dtype=float)
+    lat = np.asarray(latitude, dtype=float)
+    groups = [np.arange(len(lon))] if len(lon) else []
+    for coord in (lon, lat):
+        split = []
+        for g in groups:
+            order = g[np.argsort(coord[g])]
+            cuts = np.flatnonzero(np.diff(coord[order]) > gap_deg) + 1
+            split += [part for part in np.split(order, cuts) if len(part)]
+        groups = split
+    return sorted(groups, key=lambda g: float(lon[g].mean()))
 
 
 def _colours(n: int):
@@ -101,7 +123,7 @@ def _colours(n: int):
 
 
 def reliability_histogram(unmet_fraction, target: float,
-                          title: str = "Unmet energy per site in the design weather year") -> Figure:
+                          title: str = "Unmet energy per site in the design weather year", what: str = "sites") -> Figure:
     """Distribution of per-site unmet energy fraction with the target marked.
 
     Parameters
@@ -123,11 +145,11 @@ def reliability_histogram(unmet_fraction, target: float,
         ax.hist(np.clip(values, 0.0, upper), bins=bins, color="#4C72B0", edgecolor="white")
     above = int((values > target).sum())
     ax.axvline(target, color="#C44E52", linewidth=2,
-               label=f"target {target:.1%} ({above:,} of {len(values):,} sites above)")
+               label=f"target {target:.1%} ({above:,} of {len(values):,} {what} above)")
     ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0, decimals=1))
     ax.set_xlim(0.0, upper)
     ax.set_xlabel("unmet energy fraction (% of demand)")
-    ax.set_ylabel("sites (count)")
+    ax.set_ylabel(f"{what} (count)")
     ax.yaxis.set_major_locator(MaxNLocator(integer=True))
     ax.yaxis.set_major_formatter(FuncFormatter(_thousands))
     ax.set_title(title)
