@@ -113,6 +113,10 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         un = c.assign(by=c.site_id.map(sites[by])).groupby("by")[["unmet_kwh_day", "demand_kwh_day"]].sum()
         t["unmet energy, design year (%)"] = 100 * un.unmet_kwh_day / un.demand_kwh_day.replace(0, np.nan)
         t["sites with a unit not served"] = per_site_full.assign(x=per_site_full.not_served != "").groupby(by).x.sum()
+        by_type = (c.assign(by=c.site_id.map(sites[by])).pivot_table(index="by", columns="kit_id", values="kits_bought",
+                                                                      aggfunc="sum", fill_value=0))
+        by_type.columns = [f"{k} (kits)" for k in by_type.columns]
+        t = t.join(by_type).fillna({col: 0 for col in by_type.columns})
         return t.reset_index().rename(columns={by: by})
 
     by_district = rollup("district")
