@@ -25,6 +25,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("program", "seed"): (int, 0, None, ""),
     ("program", "horizon_years"): (int, 1, 50, "years"),
     ("program", "discount_rate"): (float, 0.0, 0.5, "per year"),
+    ("program", "design_year"): (int, 0, 50, "years after connection"),
     ("catalogue", "max_kit_types_shs"): (int, 1, 50, "kit types"),
     ("catalogue", "max_kit_types_minigrid"): (int, 1, 50, "block types"),
     ("catalogue", "cost_per_kit_type_usd"): (float, 0.0, None, "USD"),
@@ -46,12 +47,31 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("demand", "household_day_to_day_sd"): (float, 0.0, 1.0, "relative"),
     ("demand", "common_day_to_day_sd"): (float, 0.0, 1.0, "relative"),
     ("demand", "minigrid_distribution_losses"): (float, 0.0, 0.5, "fraction"),
+    ("demand", "growth_pct_per_year"): (list, None, None, "% per year, tiers 1-5"),
+    ("demand", "community_growth_pct_per_year"): (float, -10.0, 30.0, "% per year"),
+    ("demand", "school_closed_months"): (list, None, None, "months 1-12"),
+    ("demand", "street_light_w"): (float, 0.0, 500.0, "W"),
     ("economics", "om_fraction_per_year"): (float, 0.0, 0.5, "of capex per year"),
     ("economics", "controller_life_years"): (float, 1.0, 50.0, "years"),
     ("economics", "inverter_life_years"): (float, 1.0, 50.0, "years"),
 }
 
 ALLOWED_VOLTAGES_V = (12, 24, 48)
+
+
+def _numbers(v, lo, hi):
+    return all(isinstance(x, (int, float)) and not isinstance(x, bool) and lo <= x <= hi for x in v)
+
+
+#: list-valued keys: (check, what was expected)
+LIST_RULES = {
+    ("system", "voltages_v"): (lambda v: bool(v) and all(x in ALLOWED_VOLTAGES_V for x in v),
+                               f"a non-empty list drawn from {list(ALLOWED_VOLTAGES_V)}"),
+    ("demand", "growth_pct_per_year"): (lambda v: len(v) == 5 and _numbers(v, -10, 30),
+                                        "five numbers (% per year for tiers 1-5) between -10 and 30"),
+    ("demand", "school_closed_months"): (lambda v: all(isinstance(x, int) and 1 <= x <= 12 for x in v) and len(set(v)) == len(v),
+                                         "distinct whole months 1-12"),
+}
 
 
 def default_config_path() -> Path:
@@ -105,9 +125,9 @@ def validate_config(raw: dict[str, Any], label: str) -> ProgramConfig:
             if kind is float and isinstance(value, int) and not isinstance(value, bool):
                 value = float(value)
             if kind is list:
-                ok = isinstance(value, list) and value and all(v in ALLOWED_VOLTAGES_V for v in value)
-                if not ok:
-                    problems.append(Problem(label, None, name, f"expected a list drawn from {list(ALLOWED_VOLTAGES_V)}"))
+                check, expected = LIST_RULES[(section, key)]
+                if not (isinstance(value, list) and check(value)):
+                    problems.append(Problem(label, None, name, f"expected {expected}, got {value!r}"))
                     continue
             elif not isinstance(value, kind) or isinstance(value, bool):
                 problems.append(Problem(label, None, name, f"expected {kind.__name__}, got {value!r}"))

@@ -18,6 +18,8 @@ References
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 
@@ -46,8 +48,10 @@ def _hours(*spans: tuple[float, float]) -> np.ndarray:
     return np.clip(duty, 0.0, 1.0)
 
 
-def _appliance(name: str, rated_w: float, duty: np.ndarray) -> dict:
-    return {"name": name, "rated_w": rated_w, "duty": duty}
+def _appliance(name: str, rated_w: float, duty: np.ndarray, lighting: bool = False) -> dict:
+    """An appliance: rated power (W), hourly duty (24 fractions) and whether it
+    is lighting that follows dusk and dawn through the year."""
+    return {"name": name, "rated_w": rated_w, "duty": duty, "lighting": lighting}
 
 
 _EVENING_LIGHT = _hours((18.5, 22.5), (5.5, 6.5))
@@ -62,18 +66,18 @@ _FRIDGE = np.full(24, 0.4)  # compressor duty cycle, common practice for a tropi
 #: program but built to reach each tier's thresholds (checked in the tests).
 TIER_APPLIANCES: dict[int, list[dict]] = {
     1: [
-        _appliance("LED lamps (2 x 3 W)", 6.0, _EVENING_LIGHT),
+        _appliance("LED lamps (2 x 3 W)", 6.0, _EVENING_LIGHT, lighting=True),
         _appliance("phone charging", 5.0, _PHONE),
         _appliance("radio", 2.0, _hours((6, 7), (19, 21))),
     ],
     2: [
-        _appliance("LED lamps (4 x 4 W)", 16.0, _EVENING_LIGHT),
+        _appliance("LED lamps (4 x 4 W)", 16.0, _EVENING_LIGHT, lighting=True),
         _appliance("phone charging (2)", 10.0, _PHONE),
         _appliance("television 20 W", 20.0, _TV),
         _appliance("fan 20 W", 20.0, _FAN),
     ],
     3: [
-        _appliance("LED lamps (6 x 5 W)", 30.0, _EVENING_LIGHT),
+        _appliance("LED lamps (6 x 5 W)", 30.0, _EVENING_LIGHT, lighting=True),
         _appliance("phone charging (3)", 15.0, _PHONE),
         _appliance("television 60 W", 60.0, _TV),
         _appliance("fans (2 x 40 W)", 80.0, _FAN),
@@ -81,7 +85,7 @@ TIER_APPLIANCES: dict[int, list[dict]] = {
         _appliance("iron / blender 400 W", 400.0, _hours((7, 7.3), (18, 18.2))),
     ],
     4: [
-        _appliance("LED lamps (8 x 6 W)", 48.0, _EVENING_LIGHT),
+        _appliance("LED lamps (8 x 6 W)", 48.0, _EVENING_LIGHT, lighting=True),
         _appliance("phone charging (4)", 20.0, _PHONE),
         _appliance("television 80 W", 80.0, _TV),
         _appliance("fans (3 x 50 W)", 150.0, _FAN),
@@ -91,7 +95,7 @@ TIER_APPLIANCES: dict[int, list[dict]] = {
         _appliance("iron 1000 W", 1000.0, _hours((7, 7.3), (18, 18.2))),
     ],
     5: [
-        _appliance("LED lamps (10 x 8 W)", 80.0, _EVENING_LIGHT),
+        _appliance("LED lamps (10 x 8 W)", 80.0, _EVENING_LIGHT, lighting=True),
         _appliance("phone charging (5)", 25.0, _PHONE),
         _appliance("televisions (2 x 80 W)", 160.0, _TV),
         _appliance("fans (3 x 50 W)", 150.0, _FAN),
@@ -109,7 +113,7 @@ TIER_APPLIANCES: dict[int, list[dict]] = {
 FACILITY_APPLIANCES: dict[str, list[dict]] = {
     "health_post": [
         _appliance("vaccine refrigerator 80 W", 80.0, np.full(24, 0.45)),
-        _appliance("LED lights (6 x 10 W)", 60.0, _hours((18, 23), (5, 7))),
+        _appliance("LED lights (6 x 10 W)", 60.0, _hours((18, 23), (5, 7)), lighting=True),
         _appliance("night light 10 W", 10.0, _hours((0, 5), (23, 24))),
         _appliance("examination lamp and devices 60 W", 60.0, _hours((8, 12), (14, 17))),
         _appliance("laptop and radio 50 W", 50.0, _hours((8, 16))),
@@ -180,32 +184,174 @@ def weekday_mask(year_start_weekday: int = 2) -> np.ndarray:
     return ((np.arange(DAYS_PER_YEAR) + year_start_weekday) % 7) < 5
 
 
-def yearly_profile_w(daily_w: np.ndarray, daily_factor: np.ndarray, active_days: np.ndarray | None = None) -> np.ndarray:
-    """8760 hourly mean powers (W) from a 24-hour shape and per-day factors."""
-    f = daily_factor if active_days is None else daily_factor * active_days
-    return (f[:, None] * daily_w[None, :]).reshape(-1)
-
-
 def minigrid_coincidence_factor(n_households: int | np.ndarray) -> np.ndarray:
     """Share of summed household peak powers that coincide at a village peak.
 
-    ``0.2 + 0.8 / sqrt(n)``: one household coincides fully with itself and a
-    large village approaches one fifth of summed peaks (common practice; a
-    documented assumption refined later).
+    Rusck's form ``c(n) = c_inf + (1 - c_inf) / sqrt(n)`` with ``c_inf = 0.2``:
+    one household coincides fully with itself and a large village approaches
+    one fifth of summed peaks (the value of ``c_inf`` is an assumption of ours
+    for rural households dominated by evening lighting and television).
+
+    References
+    ----------
+    .. [1] Rusck, S. (1956). The simultaneous demand in distribution networks
+       supplying domestic consumers. ASEA Journal 10, 59-61.
     """
     n = np.maximum(np.asarray(n_households, dtype=float), 1.0)
     return 0.2 + 0.8 / np.sqrt(n)
+
+
+@dataclass(frozen=True)
+class DemandSettings:
+    """How demand is built; see :func:`settings_from_config`.
+
+    Attributes
+    ----------
+    household_sd, common_sd : float
+        Relative day-to-day spread of one household's demand and of the part
+        shared by a whole village (weather, market days).
+    distribution_losses : float
+        Fraction lost in a minigrid's low-voltage network; the plant supplies
+        load / (1 - losses).
+    growth_pct_per_year : tuple of 5 floats
+        Demand growth per household tier (% per year, compounding).
+    community_growth_pct_per_year : float
+        Growth of health post, school, productive and street-light loads (%/year).
+    design_year : int
+        Years after connection whose demand the kits are sized for (0 = first year).
+    school_closed_months : tuple of int
+        Months (1-12) without school term; school loads are off then.
+    street_light_w : float
+        Power of one street light (W), lit from dusk to dawn.
+    tier_profiles : dict, optional
+        User hourly profiles replacing tiers: tier -> (12 months, 2 day types
+        [weekday, weekend], 24 h) W, and ``"peak:<tier>"`` -> peak W.
+    """
+
+    household_sd: float = 0.15
+    common_sd: float = 0.08
+    distribution_losses: float = 0.05
+    growth_pct_per_year: tuple = (0.0, 0.0, 0.0, 0.0, 0.0)
+    community_growth_pct_per_year: float = 0.0
+    design_year: int = 0
+    school_closed_months: tuple = ()
+    street_light_w: float = 30.0
+    tier_profiles: dict | None = None
+
+
+def settings_from_config(cfg, tier_profiles: dict | None = None) -> DemandSettings:
+    """Demand settings from a :class:`fleet.config.ProgramConfig`."""
+    d = cfg["demand"]
+    return DemandSettings(
+        household_sd=d["household_day_to_day_sd"], common_sd=d["common_day_to_day_sd"],
+        distribution_losses=d["minigrid_distribution_losses"],
+        growth_pct_per_year=tuple(float(x) for x in d["growth_pct_per_year"]),
+        community_growth_pct_per_year=d["community_growth_pct_per_year"],
+        design_year=cfg["program"]["design_year"],
+        school_closed_months=tuple(int(m) for m in d["school_closed_months"]),
+        street_light_w=d["street_light_w"], tier_profiles=tier_profiles)
+
+
+def growth_factor(pct_per_year: float, years: int) -> float:
+    """Compound growth multiplier ``(1 + pct/100) ** years``."""
+    return float((1.0 + pct_per_year / 100.0) ** years)
+
+
+def solar_declination_deg(day_of_year: np.ndarray) -> np.ndarray:
+    """Solar declination (degrees), Cooper (1969), Solar Energy 12:333."""
+    return 23.45 * np.sin(np.radians(360.0 * (284.0 + np.asarray(day_of_year, dtype=float)) / 365.0))
+
+
+def sunrise_sunset_clock_h(latitude: float, longitude: float, utc_offset_h: float) -> tuple[np.ndarray, np.ndarray]:
+    """Sunrise and sunset per day of the year on the local standard clock (hours).
+
+    Sunset hour angle ``cos(ws) = -tan(lat) tan(decl)`` (Duffie & Beckman,
+    Solar Engineering of Thermal Processes, eq. 1.6.10); the clock differs from
+    solar time by ``utc_offset - longitude/15`` hours (the equation of time,
+    within a quarter of an hour, is neglected).
+    """
+    day = np.arange(1, DAYS_PER_YEAR + 1)
+    decl = np.radians(solar_declination_deg(day))
+    cos_ws = np.clip(-np.tan(np.radians(latitude)) * np.tan(decl), -1.0, 1.0)
+    half_day_h = np.degrees(np.arccos(cos_ws)) / 15.0
+    shift = utc_offset_h - longitude / 15.0
+    return 12.0 - half_day_h + shift, 12.0 + half_day_h + shift
+
+
+def lighting_duty(sunrise_h: np.ndarray, sunset_h: np.ndarray, lights_out_h: float = 22.5,
+                  wake_h: float = 5.5) -> np.ndarray:
+    """Per day and hour (365, 24) the share of the hour that lights are on:
+    from a quarter hour before sunset until ``lights_out_h``, and from
+    ``wake_h`` until a quarter hour after sunrise (common practice for
+    household lighting)."""
+    h = np.arange(24)[None, :]
+    ev_start = np.minimum(sunset_h - 0.25, lights_out_h)[:, None]
+    mo_end = np.maximum(sunrise_h + 0.25, wake_h)[:, None]
+    evening = np.clip(np.minimum(lights_out_h, h + 1) - np.maximum(ev_start, h), 0, 1)
+    morning = np.clip(np.minimum(mo_end, h + 1) - np.maximum(wake_h, h), 0, 1)
+    return np.clip(evening + morning, 0, 1)
+
+
+MONTH_OF_DAY = np.repeat(np.arange(12), [31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31])
+
+
+def appliance_year_w(appliances: list[dict], light_duty: np.ndarray) -> np.ndarray:
+    """(365, 24) mean power (W) of an appliance mix; lighting follows ``light_duty``."""
+    out = np.zeros((DAYS_PER_YEAR, 24))
+    for a in appliances:
+        out += a["rated_w"] * (light_duty if a.get("lighting") else a["duty"][None, :])
+    return out
+
+
+def member_year_w(group: str, light_duty: np.ndarray, settings: DemandSettings,
+                  productive_kwh_day: float = 0.0, night_duty: np.ndarray | None = None) -> tuple[np.ndarray, float]:
+    """(365, 24) mean power (W) and design peak (W) of one member of a group
+    before day-to-day variation and growth."""
+    weekdays = weekday_mask()
+    if group.startswith("t"):
+        tier = int(group[1])
+        prof = (settings.tier_profiles or {}).get(tier)
+        if prof is not None:
+            day_type = np.where(weekdays, 0, 1)
+            year = prof[MONTH_OF_DAY, day_type, :]
+            return year, float((settings.tier_profiles or {}).get(f"peak:{tier}", year.max()))
+        apps = TIER_APPLIANCES[tier]
+        return appliance_year_w(apps, light_duty), peak_power_w(apps)
+    if group in FACILITY_APPLIANCES:
+        apps = FACILITY_APPLIANCES[group]
+        year = appliance_year_w(apps, light_duty)
+        if group == "school":
+            term = ~np.isin(MONTH_OF_DAY + 1, settings.school_closed_months)
+            year = year * (weekdays & term)[:, None]
+        return year, peak_power_w(apps)
+    if group == "productive":
+        year = np.tile(PRODUCTIVE_SHAPE * productive_kwh_day * 1000.0, (DAYS_PER_YEAR, 1)) * weekdays[:, None]
+        return year, 2.0 * productive_kwh_day * 1000.0 * PRODUCTIVE_SHAPE.max()
+    if group == "street_light":
+        if night_duty is None:
+            raise ValueError("street lights need the night duty (dusk to dawn)")
+        return settings.street_light_w * night_duty, settings.street_light_w
+    raise ValueError(f"unknown service group {group!r}")
+
+
+def night_duty(sunrise_h: np.ndarray, sunset_h: np.ndarray) -> np.ndarray:
+    """Per day and hour (365, 24) the share of the hour between sunset and the next sunrise."""
+    h = np.arange(24)[None, :]
+    evening = np.clip(np.minimum(24.0, h + 1) - np.maximum(sunset_h[:, None], h), 0, 1)
+    morning = np.clip(np.minimum(sunrise_h[:, None], h + 1) - h, 0, 1)
+    return np.clip(evening + morning, 0, 1)
 
 
 def service_units(sites: pd.DataFrame) -> pd.DataFrame:
     """One row per unit a kit or plant serves.
 
     Columns: ``unit_id``, ``site_index`` (position in ``sites``), ``site_id``,
-    ``scheme``, ``group`` ('t1'..'t5', 'health_post', 'school', 'productive'
-    at SHS sites; 'village' at minigrid sites) and ``count`` (kits needed when
-    one kit serves one member of the group; 1 for a minigrid).
+    ``scheme``, ``group`` ('t1'..'t5', 'health_post', 'school', 'productive',
+    'street_light' at SHS sites; 'village' at minigrid sites) and ``count``
+    (kits needed when one kit serves one member of the group; 1 for a minigrid).
     """
     rows = []
+    has_lights = "street_lights" in sites.columns
     for pos, s in enumerate(sites.itertuples(index=False)):
         if s.scheme == "minigrid":
             rows.append((f"{s.site_id}/village", pos, s.site_id, "minigrid", "village", 1))
@@ -220,12 +366,14 @@ def service_units(sites: pd.DataFrame) -> pd.DataFrame:
                 rows.append((f"{s.site_id}/{fac}", pos, s.site_id, "shs", fac, n))
         if float(s.productive_kwh_day) > 0:
             rows.append((f"{s.site_id}/productive", pos, s.site_id, "shs", "productive", 1))
+        if has_lights and int(s.street_lights) > 0:
+            rows.append((f"{s.site_id}/street_light", pos, s.site_id, "shs", "street_light", int(s.street_lights)))
     return pd.DataFrame(rows, columns=["unit_id", "site_index", "site_id", "scheme", "group", "count"])
 
 
-def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, *, seed: int, household_sd: float,
-               common_sd: float, distribution_losses: float) -> tuple[np.ndarray, pd.DataFrame]:
-    """Hourly load (W) of one member of each unit, and its design figures.
+def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSettings, *, seed: int,
+               utc_offsets_h: np.ndarray | None = None) -> tuple[np.ndarray, pd.DataFrame]:
+    """Hourly load (W) of one member of each unit in the design year, and its design figures.
 
     Parameters
     ----------
@@ -233,14 +381,12 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, *, seed: int, household
         Validated site table.
     units : DataFrame
         From :func:`service_units`.
+    settings : DemandSettings
     seed : int
         Seed for day-to-day variability; the same seed gives the same loads.
-    household_sd, common_sd : float
-        Relative day-to-day spread of one household's demand and of the part
-        shared by a whole village (weather, market days).
-    distribution_losses : float
-        Fraction lost in a minigrid's low-voltage network; the plant supplies
-        load / (1 - losses).
+    utc_offsets_h : array, optional
+        Local standard time offset per site (hours), for dusk and dawn on the
+        local clock; default longitude / 15.
 
     Returns
     -------
@@ -249,60 +395,72 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, *, seed: int, household
     design : DataFrame
         Per unit: ``daily_energy_wh`` (mean), ``peak_power_w`` (design
         instantaneous peak for inverter and load-output sizing),
-        ``evening_share`` (share of energy used 18:00-23:00).
+        ``evening_share`` (share of energy used 18:00-23:00),
+        ``first_year_daily_energy_wh`` (before growth).
     """
     rng_root = np.random.SeedSequence(seed)
     children = rng_root.spawn(len(units))
-    weekdays = weekday_mask().astype(float)
-    tier_daily = {t: daily_profile_w(a) for t, a in TIER_APPLIANCES.items()}
-    tier_peak = {t: peak_power_w(a) for t, a in TIER_APPLIANCES.items()}
-    fac_daily = {f: daily_profile_w(a) for f, a in FACILITY_APPLIANCES.items()}
-    fac_peak = {f: peak_power_w(a) for f, a in FACILITY_APPLIANCES.items()}
     loads = np.zeros((len(units), HOURS_PER_YEAR), dtype=np.float32)
     peaks = np.zeros(len(units))
+    first_year = np.zeros(len(units))
+    yrs = settings.design_year
+    hh_growth = [growth_factor(g, yrs) for g in settings.growth_pct_per_year]
+    com_growth = growth_factor(settings.community_growth_pct_per_year, yrs)
+    sun_cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+
+    def sun(site_pos: int) -> tuple[np.ndarray, np.ndarray]:
+        if site_pos not in sun_cache:
+            site = sites.iloc[site_pos]
+            off = float(utc_offsets_h[site_pos]) if utc_offsets_h is not None else round(float(site["longitude"]) / 15.0)
+            rise, sett = sunrise_sunset_clock_h(float(site["latitude"]), float(site["longitude"]), off)
+            sun_cache[site_pos] = (lighting_duty(rise, sett), night_duty(rise, sett))
+        return sun_cache[site_pos]
+
     for i, u in enumerate(units.itertuples(index=False)):
         rng = np.random.default_rng(children[i])
         site = sites.iloc[u.site_index]
+        ld, nd = sun(u.site_index)
+        kwh = float(site["productive_kwh_day"])
         if u.group == "village":
             n_hh = sum(int(site[f"households_t{t}"]) for t in range(1, 6))
-            common = day_to_day_factors(DAYS_PER_YEAR, common_sd, rng)
-            indiv = day_to_day_factors(DAYS_PER_YEAR, household_sd / np.sqrt(max(n_hh, 1)), rng)
-            f = common * indiv
-            prof = np.zeros(HOURS_PER_YEAR)
+            f = (day_to_day_factors(DAYS_PER_YEAR, settings.common_sd, rng)
+                 * day_to_day_factors(DAYS_PER_YEAR, settings.household_sd / np.sqrt(max(n_hh, 1)), rng))
+            year = np.zeros((DAYS_PER_YEAR, 24))
+            year0 = np.zeros((DAYS_PER_YEAR, 24))
             peak_sum = 0.0
             for t in range(1, 6):
                 n = int(site[f"households_t{t}"])
-                prof += n * yearly_profile_w(tier_daily[t], f)
-                peak_sum += n * tier_peak[t]
+                if n:
+                    y, pk = member_year_w(f"t{t}", ld, settings)
+                    year += n * hh_growth[t - 1] * y
+                    year0 += n * y
+                    peak_sum += n * hh_growth[t - 1] * pk
             coincident = peak_sum * float(minigrid_coincidence_factor(n_hh))
-            for fac, col in (("health_post", "health_posts"), ("school", "schools")):
-                n = int(site[col])
-                active = None if fac == "health_post" else weekdays
-                prof += n * yearly_profile_w(fac_daily[fac], f, active)
-                coincident += n * fac_peak[fac]
-            kwh = float(site["productive_kwh_day"])
+            members = [("health_post", int(site["health_posts"])), ("school", int(site["schools"]))]
             if kwh > 0:
-                prof += yearly_profile_w(PRODUCTIVE_SHAPE * kwh * 1000.0, f, weekdays)
-                coincident += 2.0 * kwh * 1000.0 * PRODUCTIVE_SHAPE.max()
-            prof /= (1.0 - distribution_losses)
-            loads[i] = prof
-            peaks[i] = max(coincident / (1.0 - distribution_losses), prof.max())
+                members.append(("productive", 1))
+            if "street_lights" in site.index and int(site["street_lights"]) > 0:
+                members.append(("street_light", int(site["street_lights"])))
+            for group, n in members:
+                if n:
+                    y, pk = member_year_w(group, ld, settings, kwh, nd)
+                    year += n * com_growth * y
+                    year0 += n * y
+                    coincident += n * com_growth * pk
+            scale = 1.0 / (1.0 - settings.distribution_losses)
+            loads[i] = (f[:, None] * year).reshape(-1) * scale
+            first_year[i] = (f[:, None] * year0).sum() * scale / DAYS_PER_YEAR
+            peaks[i] = max(coincident * scale, float(loads[i].max()))
             continue
-        f = day_to_day_factors(DAYS_PER_YEAR, np.hypot(household_sd, common_sd), rng)
-        if u.group.startswith("t"):
-            t = int(u.group[1])
-            loads[i] = yearly_profile_w(tier_daily[t], f)
-            peaks[i] = tier_peak[t]
-        elif u.group in fac_daily:
-            active = None if u.group == "health_post" else weekdays
-            loads[i] = yearly_profile_w(fac_daily[u.group], f, active)
-            peaks[i] = fac_peak[u.group]
-        else:  # productive use at an SHS site: one larger kit
-            kwh = float(site["productive_kwh_day"])
-            loads[i] = yearly_profile_w(PRODUCTIVE_SHAPE * kwh * 1000.0, f, weekdays)
-            peaks[i] = 2.0 * kwh * 1000.0 * PRODUCTIVE_SHAPE.max()
+        f = day_to_day_factors(DAYS_PER_YEAR, np.hypot(settings.household_sd, settings.common_sd), rng)
+        y, pk = member_year_w(u.group, ld, settings, kwh, nd)
+        g = hh_growth[int(u.group[1]) - 1] if u.group.startswith("t") else com_growth
+        loads[i] = (f[:, None] * y).reshape(-1) * g
+        first_year[i] = (f[:, None] * y).sum() / DAYS_PER_YEAR
+        peaks[i] = max(pk * g, float(loads[i].max()))
     daily = loads.sum(axis=1) / DAYS_PER_YEAR
     hod = np.arange(HOURS_PER_YEAR) % 24
     evening = loads[:, (hod >= 18) & (hod < 23)].sum(axis=1) / np.maximum(loads.sum(axis=1), 1e-9)
-    design = pd.DataFrame({"daily_energy_wh": daily, "peak_power_w": peaks, "evening_share": evening})
+    design = pd.DataFrame({"daily_energy_wh": daily, "peak_power_w": peaks, "evening_share": evening,
+                           "first_year_daily_energy_wh": first_year})
     return loads, design

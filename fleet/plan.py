@@ -19,10 +19,10 @@ from . import battery, dispatch, economics
 from .catalogue import CatalogueResult, custom_best, optimise_catalogue
 from .components import ComponentLibrary
 from .config import ProgramConfig
-from .demand import HOURS_PER_YEAR, service_units, unit_loads
+from .demand import HOURS_PER_YEAR, service_units, settings_from_config, unit_loads
 from .errors import InputError, Problem
 from .kits import DesignConditions, candidate_kits, kernel_parameters
-from .resource import site_weather
+from .resource import site_weather, utc_offset_hours
 
 #: Kits whose array would give more than this many times the unit's yearly
 #: demand are not offered to it (wasteful; keeps the search small).
@@ -289,8 +289,13 @@ def compare(ev, options, units, catalogues, cfg) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
-def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None) -> PlanResult:
-    """Plan a program end to end; see the module docstring."""
+def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
+             tier_profiles: dict | None = None) -> PlanResult:
+    """Plan a program end to end; see the module docstring.
+
+    ``tier_profiles`` (from :func:`fleet.profiles.read_tier_profiles`) replaces
+    the built-in hourly profiles of the tiers it names.
+    """
     tracker = tracker or _Quiet()
     timings: dict[str, float] = {}
     warnings: list[str] = []
@@ -298,9 +303,9 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None)
 
     tracker.stage("demand")
     units = service_units(sites)
-    d = cfg["demand"]
-    loads, design = unit_loads(sites, units, seed=cfg["program"]["seed"], household_sd=d["household_day_to_day_sd"],
-                               common_sd=d["common_day_to_day_sd"], distribution_losses=d["minigrid_distribution_losses"])
+    offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
+    loads, design = unit_loads(sites, units, settings_from_config(cfg, tier_profiles), seed=cfg["program"]["seed"],
+                               utc_offsets_h=offsets)
     units = pd.concat([units, design], axis=1)
     timings["demand"] = time.perf_counter() - t
 

@@ -39,8 +39,12 @@ def test_day_to_day_factors_have_mean_one_and_requested_spread():
     assert (f > 0).all()
 
 
+QUIET = demand.DemandSettings(household_sd=0.0, common_sd=0.0, distribution_losses=0.0)
+QUIET_LOSSES = demand.DemandSettings(household_sd=0.0, common_sd=0.0, distribution_losses=0.05)
+
+
 def _sites(**over):
-    base = dict(site_id="A", scheme="minigrid", households_t1=40, households_t2=30, households_t3=10,
+    base = dict(site_id="A", latitude=0.5, longitude=31.0, scheme="minigrid", households_t1=40, households_t2=30, households_t3=10,
                 households_t4=2, households_t5=0, health_posts=1, schools=1, productive_kwh_day=10.0)
     base.update(over)
     return pd.DataFrame([base])
@@ -49,7 +53,7 @@ def _sites(**over):
 def test_minigrid_peak_is_below_summed_peaks_and_above_the_largest_single_load():
     sites = _sites()
     units = demand.service_units(sites)
-    loads, design = demand.unit_loads(sites, units, seed=1, household_sd=0.15, common_sd=0.08, distribution_losses=0.0)
+    loads, design = demand.unit_loads(sites, units, demand.DemandSettings(distribution_losses=0.0), seed=1)
     s = sites.iloc[0]
     singles = [demand.peak_power_w(demand.TIER_APPLIANCES[t]) for t in range(1, 6) if s[f"households_t{t}"] > 0]
     singles += [demand.peak_power_w(a) for a in demand.FACILITY_APPLIANCES.values()]
@@ -63,9 +67,11 @@ def test_minigrid_peak_is_below_summed_peaks_and_above_the_largest_single_load()
 def test_minigrid_energy_is_the_sum_of_its_members_and_losses_add_on_top():
     sites = _sites(health_posts=0, schools=0, productive_kwh_day=0.0)
     units = demand.service_units(sites)
-    loads0, d0 = demand.unit_loads(sites, units, seed=3, household_sd=0.0, common_sd=0.0, distribution_losses=0.0)
-    loads5, d5 = demand.unit_loads(sites, units, seed=3, household_sd=0.0, common_sd=0.0, distribution_losses=0.05)
-    expected = sum(n * demand.daily_energy_wh(demand.TIER_APPLIANCES[t]) for t, n in [(1, 40), (2, 30), (3, 10), (4, 2)])
+    loads0, d0 = demand.unit_loads(sites, units, QUIET, seed=3)
+    loads5, d5 = demand.unit_loads(sites, units, QUIET_LOSSES, seed=3)
+    rise, sett = demand.sunrise_sunset_clock_h(0.5, 31.0, round(31.0 / 15))
+    light = demand.lighting_duty(rise, sett)
+    expected = sum(n * demand.member_year_w(f"t{t}", light, QUIET)[0].sum() / 365 for t, n in [(1, 40), (2, 30), (3, 10), (4, 2)])
     assert d0.daily_energy_wh.iat[0] == pytest.approx(expected, rel=1e-5)
     assert d5.daily_energy_wh.iat[0] == pytest.approx(expected / 0.95, rel=1e-5)
 
@@ -80,9 +86,9 @@ def test_shs_site_gets_one_unit_per_tier_group_and_facility():
 def test_loads_are_reproducible_for_a_seed_and_differ_between_seeds():
     sites = _sites(scheme="shs")
     units = demand.service_units(sites)
-    a, _ = demand.unit_loads(sites, units, seed=5, household_sd=0.15, common_sd=0.08, distribution_losses=0)
-    b, _ = demand.unit_loads(sites, units, seed=5, household_sd=0.15, common_sd=0.08, distribution_losses=0)
-    c, _ = demand.unit_loads(sites, units, seed=6, household_sd=0.15, common_sd=0.08, distribution_losses=0)
+    a, _ = demand.unit_loads(sites, units, demand.DemandSettings(), seed=5)
+    b, _ = demand.unit_loads(sites, units, demand.DemandSettings(), seed=5)
+    c, _ = demand.unit_loads(sites, units, demand.DemandSettings(), seed=6)
     assert np.array_equal(a, b)
     assert not np.array_equal(a, c)
 
@@ -91,7 +97,66 @@ def test_school_load_is_zero_at_weekends():
     sites = _sites(scheme="shs", households_t1=0, households_t2=0, households_t3=0, households_t4=0,
                    health_posts=0, schools=1, productive_kwh_day=0.0)
     units = demand.service_units(sites)
-    loads, _ = demand.unit_loads(sites, units, seed=1, household_sd=0.1, common_sd=0.0, distribution_losses=0)
+    loads, _ = demand.unit_loads(sites, units, demand.DemandSettings(common_sd=0.0), seed=1)
     days = loads[0].reshape(365, 24).sum(axis=1)
     # 1 January 2025 was a Wednesday, so day 3 is Saturday (source: the Gregorian calendar)
     assert days[3] == 0 and days[4] == 0 and days[5] > 0
+
+
+@pytest.mark.parametrize("latitude", [0.0, 15.0, -25.0])
+@pytest.mark.parametrize("tier", [1, 2, 3, 4, 5])
+def test_every_day_of_a_tier_profile_meets_the_tier_energy(latitude, tier):
+    # source: ESMAP (2015) Beyond Connections, MTF daily energy thresholds (# from memory), checked on the
+    # shortest-evening day of the year too, since lighting follows dusk
+    rise, sett = demand.sunrise_sunset_clock_h(latitude, 0.0, 0.0)
+    year, peak = demand.member_year_w(f"t{tier}", demand.lighting_duty(rise, sett), demand.DemandSettings())
+    assert year.sum(axis=1).min() >= demand.MTF_THRESHOLDS[tier]["daily_wh"]
+    assert peak >= demand.MTF_THRESHOLDS[tier]["peak_w"]
+
+
+def test_day_length_from_sunrise_and_sunset_matches_the_textbook_formula():
+    # source: Duffie & Beckman, Solar Engineering of Thermal Processes (4th ed.), eq. 1.6.11:
+    # N = (2/15) arccos(-tan(lat) tan(decl)); at 40 N on 21 June (decl 23.45) N = 14.86 h (# from memory)
+    rise, sett = demand.sunrise_sunset_clock_h(40.0, 0.0, 0.0)
+    n = sett - rise
+    june21 = 171
+    assert demand.solar_declination_deg(np.array([june21 + 1]))[0] == pytest.approx(23.45, abs=0.05)
+    assert n[june21] == pytest.approx(14.86, abs=0.05)
+    assert np.allclose(demand.sunrise_sunset_clock_h(0.0, 0.0, 0.0)[1] - demand.sunrise_sunset_clock_h(0.0, 0.0, 0.0)[0], 12.0)
+
+
+def test_lighting_follows_dusk_through_the_year():
+    # common practice: evening lighting starts at dusk, so longer winter evenings use more light
+    rise, sett = demand.sunrise_sunset_clock_h(15.0, 0.0, 0.0)
+    duty = demand.lighting_duty(rise, sett)
+    assert duty[355].sum() > duty[172].sum()  # December vs June in the northern hemisphere
+
+
+def test_street_lights_burn_from_dusk_to_dawn():
+    rise, sett = demand.sunrise_sunset_clock_h(10.0, 0.0, 0.0)
+    night = demand.night_duty(rise, sett)
+    assert np.allclose(night.sum(axis=1), 24.0 - (sett - rise), atol=1e-9)
+
+
+def test_demand_growth_compounds_to_the_design_year():
+    sites = _sites(scheme="shs", households_t4=0, health_posts=0, schools=0, productive_kwh_day=0.0)
+    units = demand.service_units(sites)
+    base = demand.DemandSettings(household_sd=0.0, common_sd=0.0)
+    grown = demand.DemandSettings(household_sd=0.0, common_sd=0.0, growth_pct_per_year=(3.0, 5.0, 0, 0, 0), design_year=10)
+    l0, d0 = demand.unit_loads(sites, units, base, seed=1)
+    l1, d1 = demand.unit_loads(sites, units, grown, seed=1)
+    # source: compound growth (1 + g)^n
+    assert d1.daily_energy_wh.iat[0] / d0.daily_energy_wh.iat[0] == pytest.approx(1.03 ** 10, rel=1e-6)
+    assert d1.daily_energy_wh.iat[1] / d0.daily_energy_wh.iat[1] == pytest.approx(1.05 ** 10, rel=1e-6)
+    assert d1.first_year_daily_energy_wh.iat[1] == pytest.approx(d0.daily_energy_wh.iat[1], rel=1e-6)
+
+
+def test_schools_are_off_in_closed_months():
+    sites = _sites(scheme="shs", households_t1=0, households_t2=0, households_t3=0, households_t4=0,
+                   health_posts=0, schools=1, productive_kwh_day=0.0)
+    units = demand.service_units(sites)
+    loads, _ = demand.unit_loads(sites, units, demand.DemandSettings(school_closed_months=(4, 8)), seed=1)
+    by_day = loads[0].reshape(365, 24).sum(axis=1)
+    month = demand.MONTH_OF_DAY + 1
+    assert by_day[(month == 4) | (month == 8)].max() == 0
+    assert by_day[month == 5].max() > 0
