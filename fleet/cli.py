@@ -78,8 +78,10 @@ def cmd_plan(args: argparse.Namespace) -> int:
     if out.exists() and (not out.is_dir() or any(out.iterdir())) and not args.overwrite:
         problems.append(Problem(str(out), None, None, "already holds a run; choose another --out or pass --overwrite"))
     loaded = {}
+    from .profiles import read_tier_profiles
     for name, fn, arg in (("sites", read_sites, args.sites), ("components", read_library, args.components),
-                          ("config", load_config, args.config)):
+                          ("config", load_config, args.config),
+                          ("profiles", read_tier_profiles if args.tier_profiles else (lambda a: None), args.tier_profiles)):
         try:
             loaded[name] = fn(arg)
         except InputError as exc:
@@ -88,7 +90,8 @@ def cmd_plan(args: argparse.Namespace) -> int:
         raise InputError(problems)
     progress.stage(f"read {len(loaded['sites'])} sites from {args.sites}")
     loaded["sites"].attrs["source"] = str(args.sites)
-    result = run_plan(loaded["sites"], loaded["components"], loaded["config"], tracker=progress)
+    result = run_plan(loaded["sites"], loaded["components"], loaded["config"], tracker=progress,
+                      tier_profiles=loaded.get("profiles"))
     progress.stage("writing outputs")
     from .components import default_library_path
     from .config import default_config_path
@@ -121,6 +124,59 @@ def _print_summary(result, paths, seconds: float) -> None:
     print("\n".join(lines))
 
 
+def cmd_demand(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from .config import load_config
+    from .demand import demand_summary, service_units, settings_from_config, tier_mean_days, unit_loads
+    from .errors import InputError
+    from .profiles import read_tier_profiles
+    from .resource import utc_offset_hours
+    from .sites import read_sites
+
+    problems, loaded = [], {}
+    for name, fn, arg in (("sites", read_sites, args.sites), ("config", load_config, args.config),
+                          ("profiles", read_tier_profiles if args.tier_profiles else (lambda a: None), args.tier_profiles)):
+        try:
+            loaded[name] = fn(arg)
+        except InputError as exc:
+            problems += exc.problems
+    if problems:
+        raise InputError(problems)
+    sites, cfg = loaded["sites"], loaded["config"]
+    settings = settings_from_config(cfg, loaded["profiles"])
+    units = service_units(sites)
+    offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
+    loads, design = unit_loads(sites, units, settings, seed=cfg["program"]["seed"], utc_offsets_h=offsets)
+    table = demand_summary(sites, units, loads, design)
+    with __import__("pandas").option_context("display.max_rows", 40, "display.width", 160):
+        print(table.to_string(index=False, float_format=lambda v: f"{v:,.2f}", max_rows=40))
+    print(f"\n{len(table)} sites; design year {cfg['program']['design_year']}; "
+          f"total design-year demand {table['design-year demand (kWh/day)'].sum():,.1f} kWh/day")
+    if args.csv:
+        table.to_csv(args.csv, index=False)
+        print(f"wrote {args.csv}")
+    if args.plot:
+        from matplotlib.figure import Figure
+        lat, lon = float(sites.latitude.median()), float(sites.longitude.median())
+        days = tier_mean_days(lat, lon, utc_offset_hours(lat, lon), settings)
+        fig = Figure(figsize=(9, 4.5))
+        ax = fig.add_subplot()
+        for col in days.columns:
+            ax.plot(days.index + 0.5, days[col], label=col, drawstyle="steps-mid")
+        ax.set_yscale("log")
+        ax.set_xlabel("local hour")
+        ax.set_ylabel("mean power of one household or facility (W)")
+        ax.set_title(f"Mean day per tier and facility (near {lat:.1f}, {lon:.1f})")
+        ax.set_xticks(range(0, 25, 3))
+        ax.grid(True, alpha=0.4)
+        ax.legend(fontsize="small", ncol=2)
+        fig.tight_layout()
+        fig.savefig(args.plot, dpi=110)
+        print(f"wrote {args.plot}")
+    return 0
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="fleet",
@@ -139,7 +195,19 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", metavar="DIR", help="run folder to create (default: outputs/<sites>-<timestamp>)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing run folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress messages")
+    p.add_argument("--tier-profiles", metavar="FILE",
+                   help="survey-based hourly profiles (csv/xlsx: tier, month, day_type, h00..h23 in W) replacing built-in tiers")
     p.set_defaults(func=cmd_plan)
+    d = sub.add_parser("demand", help="demand per site: daily energy, peak, load factor",
+                       description="Build the hourly demand of every site and summarise it: first-year and design-year "
+                                   "daily energy (kWh/day), design peak (kW), load factor and evening share.",
+                       formatter_class=argparse.RawDescriptionHelpFormatter)
+    d.add_argument("sites", help="site table (.csv, .xlsx, .gpkg, .geojson); see 'fleet plan --help'")
+    d.add_argument("--config", metavar="FILE", help="program file (.toml): growth, design year, school months ...")
+    d.add_argument("--tier-profiles", metavar="FILE", help="survey-based hourly profiles replacing built-in tiers")
+    d.add_argument("--csv", metavar="FILE", help="also write the table as CSV")
+    d.add_argument("--plot", metavar="FILE", help="also write a PNG of the mean day of each tier and facility")
+    d.set_defaults(func=cmd_demand)
     return parser
 
 

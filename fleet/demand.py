@@ -464,3 +464,41 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
     design = pd.DataFrame({"daily_energy_wh": daily, "peak_power_w": peaks, "evening_share": evening,
                            "first_year_daily_energy_wh": first_year})
     return loads, design
+
+
+def demand_summary(sites: pd.DataFrame, units: pd.DataFrame, loads_w: np.ndarray, design: pd.DataFrame) -> pd.DataFrame:
+    """Per site: daily energy in the first and the design year, peak, load factor and evening share.
+
+    The site's peak is the sum of its units' design peaks (kits of an SHS site
+    are separate systems; a minigrid unit's peak already allows for coincidence).
+    """
+    u = units.assign(daily=design.daily_energy_wh * units["count"],
+                     first=design.first_year_daily_energy_wh * units["count"],
+                     peak=design.peak_power_w * units["count"],
+                     mean_w=loads_w.mean(axis=1) * units["count"],
+                     evening=design.evening_share * design.daily_energy_wh * units["count"])
+    g = u.groupby("site_id", sort=False)
+    out = pd.DataFrame({
+        "scheme": g.scheme.first(),
+        "service units": g.size(),
+        "first-year demand (kWh/day)": g["first"].sum() / 1000.0,
+        "design-year demand (kWh/day)": g["daily"].sum() / 1000.0,
+        "design peak (kW)": g["peak"].sum() / 1000.0,
+        "load factor (mean/peak)": g["mean_w"].sum() / g["peak"].sum(),
+        "evening share 18-23 h": g["evening"].sum() / g["daily"].sum(),
+    })
+    hh = sites.set_index("site_id")[[f"households_t{t}" for t in range(1, 6)]].sum(axis=1)
+    out.insert(1, "households", hh.reindex(out.index).astype(int))
+    return out.reset_index()
+
+
+def tier_mean_days(latitude: float, longitude: float, utc_offset_h: float, settings: DemandSettings) -> pd.DataFrame:
+    """Mean day (24 local hours, W) of one member of each tier and facility at a place."""
+    rise, sett = sunrise_sunset_clock_h(latitude, longitude, utc_offset_h)
+    ld, nd = lighting_duty(rise, sett), night_duty(rise, sett)
+    cols = {}
+    for t in range(1, 6):
+        cols[f"tier {t}"] = member_year_w(f"t{t}", ld, settings)[0].mean(axis=0)
+    for f in FACILITY_APPLIANCES:
+        cols[f.replace("_", " ")] = member_year_w(f, ld, settings)[0].mean(axis=0)
+    return pd.DataFrame(cols, index=pd.RangeIndex(24, name="local hour"))

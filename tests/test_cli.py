@@ -172,3 +172,15 @@ def test_help_explains_inputs_and_units():
     assert res.returncode == 0
     for word in ("households_t1", "WGS84", "kWh/day", "bill_of_materials.xlsx", "--components", "exit status"):
         assert word in res.stdout
+
+
+def test_demand_command_summarises_each_site(tmp_path):
+    csv, png = tmp_path / "demand.csv", tmp_path / "demand.png"
+    res = run_fleet("demand", DEMO, "--csv", csv, "--plot", png)
+    assert res.returncode == 0, res.stderr
+    table = pd.read_csv(csv)
+    demo = pd.read_csv(DEMO)
+    assert len(table) == len(demo)
+    assert (table["design-year demand (kWh/day)"] >= table["first-year demand (kWh/day)"] - 1e-9).all()
+    assert ((table["load factor (mean/peak)"] > 0) & (table["load factor (mean/peak)"] <= 1)).all()
+    assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
