@@ -513,14 +513,67 @@ def cell_temperature(poa_wm2, temp_air_c, wind_speed_ms=1.0, u0=25.0,
     .. [1] D. Faiman, "Assessing the outdoor operating temperature of
        photovoltaic modules", Progress in Photovoltaics 16(4):307-315, 2008.
     """
-    poa, temp_air = np.broadcast_arrays(np.asarray(poa_wm2, dtype=float),
-                                        np.asarray(temp_air_c, dtype=float))
-    return np.asarray(pvlib.temperature.faiman(poa, temp_air, wind_speed_ms,
-                                               u0=u0, u1=u1), dtype=float)
+    poa = np.asarray(poa_wm2, dtype=float)
+    temp_air = np.asarray(temp_air_c, dtype=float)
+    # Faiman: T_cell = T_air + G / (U0 + U1 * v)
+    return temp_air + poa / (u0 + u1 * np.asarray(wind_speed_ms, dtype=float))
+
+
+#: Soiling loss of the PVWatts default loss breakdown [-].
+DEFAULT_SOILING_FRACTION = 0.02
+#: DC wiring loss of the PVWatts default loss breakdown [-].
+DEFAULT_WIRING_FRACTION = 0.02
+#: Default total DC losses between cells and controller input [-] (PVWatts).
+DEFAULT_LOSSES_FRACTION = 0.14
+#: The remaining losses (mismatch, connections, light-induced degradation,
+#: nameplate, availability, shading) such that soiling, wiring and these
+#: combine to :data:`DEFAULT_LOSSES_FRACTION`.
+DEFAULT_OTHER_LOSSES_FRACTION = 1.0 - (1.0 - DEFAULT_LOSSES_FRACTION) / (
+    (1.0 - DEFAULT_SOILING_FRACTION) * (1.0 - DEFAULT_WIRING_FRACTION))
+
+
+def combined_losses_fraction(soiling_fraction=DEFAULT_SOILING_FRACTION,
+                             wiring_fraction=DEFAULT_WIRING_FRACTION,
+                             other_losses_fraction=DEFAULT_OTHER_LOSSES_FRACTION):
+    """Total DC loss from separate loss fractions, combined as PVWatts does.
+
+    Parameters
+    ----------
+    soiling_fraction : float, default 0.02
+        Dust and dirt on the modules [-].
+    wiring_fraction : float, default 0.02
+        Resistive loss in DC cables between array and controller [-].
+    other_losses_fraction : float, default about 0.1045
+        Every other DC loss (mismatch, connections, light-induced
+        degradation, nameplate rating, availability, shading) [-].
+
+    Returns
+    -------
+    float
+        ``1 - (1 - soiling) (1 - wiring) (1 - other)`` [-]; the defaults
+        give 0.14.
+
+    References
+    ----------
+    .. [1] A. P. Dobos, "PVWatts Version 5 Manual", NREL/TP-6A20-62641,
+       2014, section 3.1.
+    """
+    parts = {"soiling_fraction": soiling_fraction,
+             "wiring_fraction": wiring_fraction,
+             "other_losses_fraction": other_losses_fraction}
+    kept = 1.0
+    for name, value in parts.items():
+        value = float(value)
+        if not 0.0 <= value < 1.0:
+            raise ValueError(f"{name} must be in [0, 1), got {value}")
+        kept *= 1.0 - value
+    return 1.0 - kept
 
 
 def dc_power_per_kwp(poa_wm2, cell_temp_c, gamma_pdc_per_k=-0.004,
-                     losses_fraction=0.14):
+                     losses_fraction=None, *, soiling_fraction=None,
+                     wiring_fraction=None,
+                     other_losses_fraction=DEFAULT_OTHER_LOSSES_FRACTION):
     """Array DC output per kWp of nameplate with the PVWatts DC model.
 
     Parameters
@@ -533,9 +586,18 @@ def dc_power_per_kwp(poa_wm2, cell_temp_c, gamma_pdc_per_k=-0.004,
         Cell temperature [°C].
     gamma_pdc_per_k : float, default -0.004
         Power temperature coefficient [1/K].
-    losses_fraction : float, default 0.14
-        Combined DC losses between the cells and the controller input: soiling,
-        wiring and module mismatch [-].
+    losses_fraction : float, optional
+        All DC losses between the cells and the controller input in one
+        figure [-]. When given, it replaces the three separate fractions
+        below (which must then be left out). Default: the separate
+        fractions combined by :func:`combined_losses_fraction` (0.14 with
+        all defaults).
+    soiling_fraction : float, optional
+        Soiling loss [-]; default 0.02.
+    wiring_fraction : float, optional
+        DC wiring loss [-]; default 0.02.
+    other_losses_fraction : float, default about 0.1045
+        Every other DC loss [-].
 
     Returns
     -------
@@ -547,13 +609,27 @@ def dc_power_per_kwp(poa_wm2, cell_temp_c, gamma_pdc_per_k=-0.004,
     .. [1] A. P. Dobos, "PVWatts Version 5 Manual", NREL/TP-6A20-62641,
        2014.
     """
-    if not 0.0 <= losses_fraction < 1.0:
-        raise ValueError(
-            f"losses_fraction must be in [0, 1), got {losses_fraction}")
-    pdc = pvlib.pvsystem.pvwatts_dc(
-        np.asarray(poa_wm2, dtype=float), np.asarray(cell_temp_c, dtype=float),
-        pdc0=1000.0, gamma_pdc=gamma_pdc_per_k)
-    return np.asarray(pdc, dtype=float) * (1.0 - losses_fraction)
+    if losses_fraction is not None:
+        if soiling_fraction is not None or wiring_fraction is not None:
+            raise ValueError(
+                "give either losses_fraction (all DC losses in one figure) "
+                "or soiling_fraction/wiring_fraction, not both")
+        if not 0.0 <= losses_fraction < 1.0:
+            raise ValueError(
+                f"losses_fraction must be in [0, 1), got {losses_fraction}")
+        total_loss = float(losses_fraction)
+    else:
+        total_loss = combined_losses_fraction(
+            DEFAULT_SOILING_FRACTION if soiling_fraction is None
+            else soiling_fraction,
+            DEFAULT_WIRING_FRACTION if wiring_fraction is None
+            else wiring_fraction,
+            other_losses_fraction)
+    poa = np.asarray(poa_wm2, dtype=float)
+    temp = np.asarray(cell_temp_c, dtype=float)
+    # PVWatts DC: P = G/1000 * Pdc0 * (1 + gamma (T_cell - 25 °C))
+    pdc = poa * (1.0 + gamma_pdc_per_k * (temp - 25.0))
+    return pdc * (1.0 - total_loss)
 
 
 def specific_yield_kwh_per_kwp(dc_w_per_kwp):
