@@ -147,8 +147,8 @@ def cmd_demand(args: argparse.Namespace) -> int:
     settings = settings_from_config(cfg, loaded["profiles"])
     units = service_units(sites)
     offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
-    loads, design = unit_loads(sites, units, settings, seed=cfg["program"]["seed"], utc_offsets_h=offsets)
-    table = demand_summary(sites, units, loads, design)
+    demand = unit_loads(sites, units, settings, seed=cfg["program"]["seed"], utc_offsets_h=offsets)
+    table = demand_summary(sites, units, demand)
     with __import__("pandas").option_context("display.max_rows", 40, "display.width", 160):
         print(table.to_string(index=False, float_format=lambda v: f"{v:,.2f}", max_rows=40))
     print(f"\n{len(table)} sites; design year {cfg['program']['design_year']}; "

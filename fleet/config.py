@@ -26,6 +26,9 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("program", "horizon_years"): (int, 1, 50, "years"),
     ("program", "discount_rate"): (float, 0.0, 0.5, "per year"),
     ("program", "design_year"): (int, 0, 50, "years after connection"),
+    ("program", "critical_reliability_target"): (float, 0.0, 1.0, "fraction of critical demand unmet"),
+    ("program", "service_target"): (str, None, None, "unmet, tier or both"),
+    ("program", "tier_days_share"): (float, 0.0, 1.0, "share of days"),
     ("catalogue", "max_kit_types_shs"): (int, 1, 50, "kit types"),
     ("catalogue", "max_kit_types_minigrid"): (int, 1, 50, "block types"),
     ("catalogue", "cost_per_kit_type_usd"): (float, 0.0, None, "USD"),
@@ -35,6 +38,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("system", "voltages_v"): (list, None, None, "V"),
     ("system", "reconnect_hysteresis_soc"): (float, 0.0, 0.5, "state of charge"),
     ("system", "max_parallel_battery_strings"): (int, 1, 10, "strings"),
+    ("system", "critical_shed_separation_soc"): (float, 0.0, 0.5, "state of charge"),
     ("system", "design_cell_temp_hot_c"): (float, 30.0, 100.0, "degC"),
     ("temperature", "default_mean_c"): (float, -30.0, 50.0, "degC"),
     ("temperature", "default_min_c"): (float, -50.0, 40.0, "degC"),
@@ -138,6 +142,9 @@ def validate_config(raw: dict[str, Any], label: str) -> ProgramConfig:
                     problems.append(Problem(label, None, name, f"{value} is outside {rng} {unit}".rstrip()))
                     continue
             out.setdefault(section, {})[key] = value
+    kind = out.get("program", {}).get("service_target")
+    if kind is not None and kind not in ("unmet", "tier", "both"):
+        problems.append(Problem(label, None, "program.service_target", f"'{kind}' is not one of unmet, tier, both"))
     solver = out.get("catalogue", {}).get("solver")
     if solver is not None and solver not in ("cbc", "highs"):
         problems.append(Problem(label, None, "catalogue.solver", f"'{solver}' is not one of cbc, highs"))

@@ -48,10 +48,11 @@ def _hours(*spans: tuple[float, float]) -> np.ndarray:
     return np.clip(duty, 0.0, 1.0)
 
 
-def _appliance(name: str, rated_w: float, duty: np.ndarray, lighting: bool = False) -> dict:
-    """An appliance: rated power (W), hourly duty (24 fractions) and whether it
-    is lighting that follows dusk and dawn through the year."""
-    return {"name": name, "rated_w": rated_w, "duty": duty, "lighting": lighting}
+def _appliance(name: str, rated_w: float, duty: np.ndarray, lighting: bool = False, critical: bool = False) -> dict:
+    """An appliance: rated power (W), hourly duty (24 fractions), whether it
+    is lighting that follows dusk and dawn through the year, and whether it is
+    a critical load (kept on after other loads are shed)."""
+    return {"name": name, "rated_w": rated_w, "duty": duty, "lighting": lighting, "critical": critical}
 
 
 _EVENING_LIGHT = _hours((18.5, 22.5), (5.5, 6.5))
@@ -112,7 +113,7 @@ TIER_APPLIANCES: dict[int, list[dict]] = {
 #: on weekdays only.
 FACILITY_APPLIANCES: dict[str, list[dict]] = {
     "health_post": [
-        _appliance("vaccine refrigerator 80 W", 80.0, np.full(24, 0.45)),
+        _appliance("vaccine refrigerator 80 W", 80.0, np.full(24, 0.45), critical=True),
         _appliance("LED lights (6 x 10 W)", 60.0, _hours((18, 23), (5, 7)), lighting=True),
         _appliance("night light 10 W", 10.0, _hours((0, 5), (23, 24))),
         _appliance("examination lamp and devices 60 W", 60.0, _hours((8, 12), (14, 17))),
@@ -295,12 +296,53 @@ def lighting_duty(sunrise_h: np.ndarray, sunset_h: np.ndarray, lights_out_h: flo
 MONTH_OF_DAY = np.repeat(np.arange(12), [31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31])
 
 
-def appliance_year_w(appliances: list[dict], light_duty: np.ndarray) -> np.ndarray:
-    """(365, 24) mean power (W) of an appliance mix; lighting follows ``light_duty``."""
+def appliance_year_w(appliances: list[dict], light_duty: np.ndarray, critical_only: bool = False) -> np.ndarray:
+    """(365, 24) mean power (W) of an appliance mix; lighting follows ``light_duty``.
+    With ``critical_only`` just the critical appliances."""
     out = np.zeros((DAYS_PER_YEAR, 24))
     for a in appliances:
+        if critical_only and not a.get("critical"):
+            continue
         out += a["rated_w"] * (light_duty if a.get("lighting") else a["duty"][None, :])
     return out
+
+
+def critical_year_w(group: str, light_duty: np.ndarray) -> np.ndarray:
+    """(365, 24) mean power (W) of the critical part of one member's load (zero for most groups)."""
+    if group in FACILITY_APPLIANCES:
+        return appliance_year_w(FACILITY_APPLIANCES[group], light_duty, critical_only=True)
+    return np.zeros((DAYS_PER_YEAR, 24))
+
+
+#: A water pump (deferrable load) is sized to deliver its daily energy in this
+#: many hours of full power (common practice for solar pumping without storage).
+PUMP_HOURS_PER_DAY = 6.0
+
+
+@dataclass
+class UnitDemand:
+    """Demand of one member of each service unit in the design year.
+
+    Attributes
+    ----------
+    general_w : float32 (n_units, 8760)
+        Loads shed first at the low-voltage disconnect, W (hourly means).
+    critical_w : float32 (n_units, 8760)
+        Critical loads (vaccine refrigerators), kept on longer, W.
+    design : DataFrame
+        Per unit: ``daily_energy_wh`` (general + critical, mean), ``peak_power_w``,
+        ``evening_share``, ``first_year_daily_energy_wh``, ``critical_wh_day``,
+        ``deferrable_wh_day`` (energy a pump needs each day, any hour) and
+        ``pump_w`` (its power).
+    """
+
+    general_w: np.ndarray
+    critical_w: np.ndarray
+    design: pd.DataFrame
+
+    @property
+    def total_w(self) -> np.ndarray:
+        return self.general_w + self.critical_w
 
 
 def member_year_w(group: str, light_duty: np.ndarray, settings: DemandSettings,
@@ -352,6 +394,7 @@ def service_units(sites: pd.DataFrame) -> pd.DataFrame:
     """
     rows = []
     has_lights = "street_lights" in sites.columns
+    has_pumping = "pumping_kwh_day" in sites.columns
     for pos, s in enumerate(sites.itertuples(index=False)):
         if s.scheme == "minigrid":
             rows.append((f"{s.site_id}/village", pos, s.site_id, "minigrid", "village", 1))
@@ -368,6 +411,8 @@ def service_units(sites: pd.DataFrame) -> pd.DataFrame:
             rows.append((f"{s.site_id}/productive", pos, s.site_id, "shs", "productive", 1))
         if has_lights and int(s.street_lights) > 0:
             rows.append((f"{s.site_id}/street_light", pos, s.site_id, "shs", "street_light", int(s.street_lights)))
+        if has_pumping and float(s.pumping_kwh_day) > 0:
+            rows.append((f"{s.site_id}/pumping", pos, s.site_id, "shs", "pumping", 1))
     return pd.DataFrame(rows, columns=["unit_id", "site_index", "site_id", "scheme", "group", "count"])
 
 
@@ -390,19 +435,18 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
 
     Returns
     -------
-    loads_w : ndarray, shape (n_units, 8760), float32
-        Mean power per local hour at the plant or kit output (W).
-    design : DataFrame
-        Per unit: ``daily_energy_wh`` (mean), ``peak_power_w`` (design
-        instantaneous peak for inverter and load-output sizing),
-        ``evening_share`` (share of energy used 18:00-23:00),
-        ``first_year_daily_energy_wh`` (before growth).
+    UnitDemand
+        General and critical hourly loads (W, hourly means at the plant or
+        kit output) and per-unit design figures.
     """
     rng_root = np.random.SeedSequence(seed)
     children = rng_root.spawn(len(units))
     loads = np.zeros((len(units), HOURS_PER_YEAR), dtype=np.float32)
+    crit = np.zeros((len(units), HOURS_PER_YEAR), dtype=np.float32)
     peaks = np.zeros(len(units))
     first_year = np.zeros(len(units))
+    deferrable = np.zeros(len(units))
+    has_pumping = "pumping_kwh_day" in sites.columns
     yrs = settings.design_year
     hh_growth = [growth_factor(g, yrs) for g in settings.growth_pct_per_year]
     com_growth = growth_factor(settings.community_growth_pct_per_year, yrs)
@@ -427,6 +471,8 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
                  * day_to_day_factors(DAYS_PER_YEAR, settings.household_sd / np.sqrt(max(n_hh, 1)), rng))
             year = np.zeros((DAYS_PER_YEAR, 24))
             year0 = np.zeros((DAYS_PER_YEAR, 24))
+            cyear = np.zeros((DAYS_PER_YEAR, 24))
+            cyear0 = np.zeros((DAYS_PER_YEAR, 24))
             peak_sum = 0.0
             for t in range(1, 6):
                 n = int(site[f"households_t{t}"])
@@ -446,32 +492,48 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
                     y, pk = member_year_w(group, ld, settings, kwh, nd)
                     year += n * com_growth * y
                     year0 += n * y
+                    cy = critical_year_w(group, ld)
+                    cyear += n * com_growth * cy
+                    cyear0 += n * cy
                     coincident += n * com_growth * pk
             scale = 1.0 / (1.0 - settings.distribution_losses)
-            loads[i] = (f[:, None] * year).reshape(-1) * scale
-            first_year[i] = (f[:, None] * year0).sum() * scale / DAYS_PER_YEAR
+            crit[i] = cyear.reshape(-1) * scale  # a refrigerator does not vary with household habits
+            loads[i] = (f[:, None] * (year - cyear) + cyear).reshape(-1) * scale
+            first_year[i] = (f[:, None] * (year0 - cyear0) + cyear0).sum() * scale / DAYS_PER_YEAR
             peaks[i] = max(coincident * scale, float(loads[i].max()))
+            if has_pumping:
+                deferrable[i] = float(site["pumping_kwh_day"]) * 1000.0 * com_growth * scale
             continue
         f = day_to_day_factors(DAYS_PER_YEAR, np.hypot(settings.household_sd, settings.common_sd), rng)
-        y, pk = member_year_w(u.group, ld, settings, kwh, nd)
         g = hh_growth[int(u.group[1]) - 1] if u.group.startswith("t") else com_growth
-        loads[i] = (f[:, None] * y).reshape(-1) * g
-        first_year[i] = (f[:, None] * y).sum() / DAYS_PER_YEAR
+        if u.group == "pumping":
+            deferrable[i] = float(site["pumping_kwh_day"]) * 1000.0 * g
+            peaks[i] = deferrable[i] / PUMP_HOURS_PER_DAY
+            continue
+        y, pk = member_year_w(u.group, ld, settings, kwh, nd)
+        cy = critical_year_w(u.group, ld)
+        crit[i] = cy.reshape(-1) * g
+        loads[i] = (f[:, None] * (y - cy) + cy).reshape(-1) * g
+        first_year[i] = (f[:, None] * (y - cy) + cy).sum() / DAYS_PER_YEAR
         peaks[i] = max(pk * g, float(loads[i].max()))
     daily = loads.sum(axis=1) / DAYS_PER_YEAR
     hod = np.arange(HOURS_PER_YEAR) % 24
     evening = loads[:, (hod >= 18) & (hod < 23)].sum(axis=1) / np.maximum(loads.sum(axis=1), 1e-9)
     design = pd.DataFrame({"daily_energy_wh": daily, "peak_power_w": peaks, "evening_share": evening,
-                           "first_year_daily_energy_wh": first_year})
-    return loads, design
+                           "first_year_daily_energy_wh": first_year,
+                           "critical_wh_day": crit.sum(axis=1) / DAYS_PER_YEAR,
+                           "deferrable_wh_day": deferrable, "pump_w": deferrable / PUMP_HOURS_PER_DAY})
+    return UnitDemand(general_w=loads - crit, critical_w=crit, design=design)
 
 
-def demand_summary(sites: pd.DataFrame, units: pd.DataFrame, loads_w: np.ndarray, design: pd.DataFrame) -> pd.DataFrame:
+def demand_summary(sites: pd.DataFrame, units: pd.DataFrame, demand: "UnitDemand") -> pd.DataFrame:
     """Per site: daily energy in the first and the design year, peak, load factor and evening share.
 
     The site's peak is the sum of its units' design peaks (kits of an SHS site
     are separate systems; a minigrid unit's peak already allows for coincidence).
     """
+    design = demand.design
+    loads_w = demand.total_w
     u = units.assign(daily=design.daily_energy_wh * units["count"],
                      first=design.first_year_daily_energy_wh * units["count"],
                      peak=design.peak_power_w * units["count"],

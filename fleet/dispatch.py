@@ -9,19 +9,26 @@ combinations at once. One hour, in order:
    PWM/series/shunt, the array current at battery charging voltage (the array
    is tied to the battery), never more than its maximum power; both capped at
    the controller's rated current.
-2. Demand on the DC bus: controller self-consumption always; the load only
-   while connected (AC: load / inverter efficiency + inverter no-load power;
-   load above the kit's output rating is not served).
+2. Demand on the DC bus: controller self-consumption always; the general and
+   the critical load each only while its output is connected (AC: load /
+   inverter efficiency + inverter no-load power while any output is on); load
+   above the kit's output rating is not served, the critical load first in
+   line for the rating.
 3. Array power serves the bus first; the surplus charges the battery within
    the battery's C-rate, the controller rating and a taper of charge
    acceptance near full (absorption/float); the rest is spilled (the
    controller regulates the array off its maximum power point).
-4. The battery covers the deficit within its discharge C-rate down to the
-   low-voltage disconnect state of charge; when it reaches it the load is
-   disconnected and stays off until the state of charge climbs back to the
-   reconnect level (hysteresis). Controller self-consumption continues from
-   the battery while loads are off.
-5. Self-discharge.
+4. A deferrable load (water pumping: a daily energy need, any hour) runs on
+   what is left of the array surplus after charging, and from the battery
+   while its state of charge is above ``DEFER_MIN_SOC``; what the day leaves
+   undone is reported.
+5. The battery covers the deficit within its discharge C-rate: critical load
+   and self-consumption down to the low-voltage disconnect, the general load
+   down to a higher shedding level (disconnect + the unit's separation, zero
+   when it has no critical load). Each output, once off, stays off until the
+   state of charge climbs back to its reconnect level (hysteresis).
+   Controller self-consumption continues while loads are off.
+6. Self-discharge.
 
 Every flow is in Wh for the hour (mean W × 1 h). The energy accounting closes
 every hour: PV at the bus = direct use + charge + spill; stored change =
@@ -42,7 +49,10 @@ from numba import njit, prange
 
 HOURS = 8760
 WARMUP_HOURS = 720  # the year's last 30 days run first to set the starting state of charge
-EVENING_START, EVENING_END = 18, 23  # local clock hours counted as evening service
+EVENING_START, EVENING_END = 18, 22  # local clock hours counted as evening service (4 h)
+
+#: The battery may run a deferrable load (pump) only above this state of charge.
+DEFER_MIN_SOC = 0.85
 
 #: Names of the per (pair, year) metrics, in the kernel's output order.
 METRICS = (
@@ -50,41 +60,56 @@ METRICS = (
     "evening_demand_wh", "evening_served_wh", "pv_mpp_wh", "pv_bus_wh", "pv_used_wh", "pv_spilled_wh",
     "battery_discharge_wh", "battery_charge_wh", "controller_self_wh", "inverter_loss_wh",
     "soc_min", "soc_mean", "days_full_charge", "balance_residual_wh",
+    "critical_demand_wh", "critical_unmet_wh", "deferrable_demand_wh", "deferrable_served_wh",
+    "days_supply_tier1", "days_supply_tier2", "days_supply_tier3", "days_supply_tier4", "days_supply_tier5",
 )
 N_METRICS = len(METRICS)
+M = {name: i for i, name in enumerate(METRICS)}
 # parameter columns (see fleet.kits.KERNEL_COLUMNS, plus reconnect SOC and array losses)
 (P_WP, P_MPPT, P_IMP, P_ALPHA, P_GAMMA, P_VCH, P_CEFF, P_CMAX, P_CSELF, P_ENOM, P_LVD, P_ETAC, P_ETAD,
  P_BCH, P_BDIS, P_SD, P_TAPER, P_ACC, P_MAXLOAD, P_IEFF, P_INL, P_LVR, P_LOSS) = range(23)
+#: per-unit parameter columns: deferrable Wh per day, pump W, SOC separation of general-load shedding
+U_DEFER_WH, U_PUMP_W, U_SEP = range(3)
+#: Multi-Tier Framework minimum hours of supply per day and in the evening, tiers 1-5
+#: (ESMAP 2015, Beyond Connections; the evening counted here is 18:00-22:00 local).
+TIER_HOURS = np.array([4.0, 4.0, 8.0, 16.0, 23.0])
+TIER_EVENING_HOURS = np.array([1.0, 2.0, 3.0, 4.0, 4.0])
 
 
 @njit(cache=True, inline="always")
-def _step(g, tc, load_w, p, e, on):
-    """One hour. Returns (e_new, on_new, flows...) with flows in Wh."""
-    enom = p[P_ENOM]
-    # 1. array
-    if g > 0.0:
-        mpp = p[P_WP] * g / 1000.0 * (1.0 + p[P_GAMMA] * (tc - 25.0)) * (1.0 - p[P_LOSS])
-        if mpp < 0.0:
-            mpp = 0.0
-        if p[P_MPPT] > 0.5:
-            pv = mpp * p[P_CEFF]
-        else:
-            i_op = p[P_IMP] * g / 1000.0 * (1.0 + p[P_ALPHA] * (tc - 25.0)) * (1.0 - p[P_LOSS])
-            pv = min(i_op * p[P_VCH], mpp) * p[P_CEFF]
-        if pv > p[P_CMAX]:
-            pv = p[P_CMAX]
-    else:
+def _array_power(g, tc, p):
+    """(power at maximum power point, power at the controller output), W."""
+    if g <= 0.0:
+        return 0.0, 0.0
+    mpp = p[P_WP] * g / 1000.0 * (1.0 + p[P_GAMMA] * (tc - 25.0)) * (1.0 - p[P_LOSS])
+    if mpp < 0.0:
         mpp = 0.0
-        pv = 0.0
-    # 2. demand on the bus
-    served_cap = min(load_w, p[P_MAXLOAD])
-    if on:
-        load_bus = served_cap / p[P_IEFF] + (p[P_INL] if p[P_IEFF] < 1.0 else 0.0)
+    if p[P_MPPT] > 0.5:
+        pv = mpp * p[P_CEFF]
     else:
-        load_bus = 0.0
+        i_op = p[P_IMP] * g / 1000.0 * (1.0 + p[P_ALPHA] * (tc - 25.0)) * (1.0 - p[P_LOSS])
+        pv = min(i_op * p[P_VCH], mpp) * p[P_CEFF]
+    if pv > p[P_CMAX]:
+        pv = p[P_CMAX]
+    return mpp, pv
+
+
+@njit(cache=True, inline="always")
+def _step(g, tc, gen_w, crit_w, defer_left, pump_w, sep, p, e, on_g, on_c):
+    """One hour. Returns (e, on_g, on_c, flows...) with flows in Wh; see the module docstring."""
+    enom = p[P_ENOM]
+    mpp, pv = _array_power(g, tc, p)
+    ac = p[P_IEFF] < 1.0
+    # 2. demand on the bus (critical first in line for the output rating)
+    crit_cap = min(crit_w, p[P_MAXLOAD]) if on_c else 0.0
+    gen_cap = min(gen_w, p[P_MAXLOAD] - crit_cap) if on_g else 0.0
+    inv_on = ac and (on_g or (on_c and crit_w > 0.0))
+    no_load = p[P_INL] if inv_on else 0.0
+    crit_bus = crit_cap / p[P_IEFF] + no_load
+    gen_bus = gen_cap / p[P_IEFF]
     self_w = p[P_CSELF]
-    demand_bus = self_w + load_bus
-    # 3. direct use, charge, spill
+    demand_bus = self_w + crit_bus + gen_bus
+    # 3. array first to the bus, then charge
     direct = min(pv, demand_bus)
     surplus = pv - direct
     deficit = demand_bus - direct
@@ -93,76 +118,121 @@ def _step(g, tc, load_w, p, e, on):
     if soc > p[P_TAPER]:
         limit *= 1.0 - (1.0 - p[P_ACC]) * (soc - p[P_TAPER]) / (1.0 - p[P_TAPER])
     room = (enom - e) / p[P_ETAC]
-    charge = min(surplus, limit, room)
-    if charge < 0.0:
-        charge = 0.0
-    spill = surplus - charge
+    charge = max(min(surplus, limit, room), 0.0)
     e += charge * p[P_ETAC]
-    # 4. discharge
-    discharge = 0.0
-    unmet_bus = 0.0
-    on_new = on
-    if deficit > 0.0:
-        floor = p[P_LVD] * enom if on else 0.0
-        avail = (e - floor) * p[P_ETAD]
-        if avail < 0.0:
-            avail = 0.0
-        discharge = min(deficit, p[P_BDIS], avail)
-        unmet_bus = deficit - discharge
-        e -= discharge / p[P_ETAD]
-        if on and avail <= deficit and avail < p[P_BDIS]:
-            on_new = False  # reached the low-voltage disconnect
-    # share of the bus load actually delivered (the unmet part falls on the load)
-    if on and load_bus > 0.0:
-        load_bus_served = load_bus - unmet_bus
-        if load_bus_served < 0.0:
-            load_bus_served = 0.0
-        frac = load_bus_served / load_bus
+    surplus -= charge
+    # 4. deferrable load from the rest of the surplus (the battery may add to it after the loads, below)
+    defer_pv = 0.0
+    want = 0.0
+    if defer_left > 0.0:
+        want = min(pump_w, defer_left) / p[P_IEFF]
+        defer_pv = min(surplus, want)
+        surplus -= defer_pv
+    spill = surplus
+    # 5. discharge: the deficit is general load first (the array served the rest first)
+    def_g = min(deficit, gen_bus)
+    def_c = deficit - def_g
+    floor_c = p[P_LVD] * enom if on_c else 0.0
+    d_c = 0.0
+    avail_c = max(e - floor_c, 0.0) * p[P_ETAD]
+    if def_c > 0.0:
+        d_c = min(def_c, p[P_BDIS], avail_c)
+        e -= d_c / p[P_ETAD]
+    d_g = 0.0
+    floor_g = (p[P_LVD] + sep) * enom
+    on_g_new = on_g
+    on_c_new = on_c
+    if on_c and def_c > 0.0 and avail_c <= def_c and avail_c < p[P_BDIS]:
+        on_c_new = False  # low-voltage disconnect of every output
+        on_g_new = False
+    if def_g > 0.0:
+        avail_g = max(e - floor_g, 0.0) * p[P_ETAD]
+        room_dis = max(p[P_BDIS] - d_c, 0.0)
+        d_g = min(def_g, room_dis, avail_g)
+        e -= d_g / p[P_ETAD]
+        if avail_g <= def_g and avail_g < room_dis:
+            on_g_new = False  # general load shed
+    # the battery adds to the deferrable load while well charged and not needed by the loads
+    defer_bat = 0.0
+    extra = want - defer_pv
+    if extra > 0.0 and e > DEFER_MIN_SOC * enom:
+        defer_bat = min(extra, max(p[P_BDIS] - d_c - d_g, 0.0), (e - DEFER_MIN_SOC * enom) * p[P_ETAD])
+        e -= defer_bat / p[P_ETAD]
+    discharge = d_c + d_g + defer_bat
+    unmet_c_bus = def_c - d_c  # falls on the critical load first, then on self-consumption
+    crit_bus_served = max(crit_bus - unmet_c_bus, 0.0)
+    gen_bus_served = gen_bus - (def_g - d_g)
+    if crit_bus > 0.0:
+        crit_served = crit_cap * max(crit_bus_served - no_load, 0.0) / max(crit_bus - no_load, 1e-12) if crit_cap > 0.0 else 0.0
     else:
-        load_bus_served = 0.0
-        frac = 0.0
-    served = served_cap * frac
-    inv_loss = load_bus_served - served
-    self_served = direct + discharge - load_bus_served
-    # 5. self-discharge and reconnect
+        crit_served = 0.0
+    gen_served = gen_bus_served * p[P_IEFF]
+    defer_served = (defer_pv + defer_bat) * p[P_IEFF]
+    inv_loss = (crit_bus_served + gen_bus_served + defer_pv + defer_bat) - (crit_served + gen_served + defer_served)
+    self_served = direct + d_c + d_g - crit_bus_served - gen_bus_served
+    # 6. self-discharge and reconnect
     sd = e * p[P_SD]
     e -= sd
     if e < 0.0:
         e = 0.0
-    if (not on_new) and e >= p[P_LVR] * enom:
-        on_new = True
-    return e, on_new, mpp, pv, direct, charge, spill, discharge, served, inv_loss, self_served, sd
+    if (not on_c_new) and e >= p[P_LVR] * enom:
+        on_c_new = True
+    if (not on_g_new) and on_c_new and e >= min(p[P_LVR] + sep, 0.98) * enom:
+        on_g_new = True
+    return (e, on_g_new, on_c_new, mpp, pv, direct, charge, spill, discharge, gen_served, crit_served,
+            defer_served, inv_loss, self_served, sd, defer_pv + defer_bat, defer_pv)
 
 
 @njit(cache=True)
-def _warm_up(poa, tcell, load, scale, p):
+def _warm_up(poa, tcell, gen, crit, unit_p, scale, p):
     """State after running the year's last WARMUP_HOURS from full charge."""
     e = p[P_ENOM]
-    on = True
+    on_g = True
+    on_c = True
+    defer_left = 0.0
     for h in range(HOURS - WARMUP_HOURS, HOURS):
-        r = _step(poa[h], tcell[h], load[h] / scale, p, e, on)
-        e, on = r[0], r[1]
-    return e, on
+        if h % 24 == 0:
+            defer_left = unit_p[U_DEFER_WH] / scale
+        r = _step(poa[h], tcell[h], gen[h] / scale, crit[h] / scale, defer_left, unit_p[U_PUMP_W] / scale,
+                  unit_p[U_SEP], p, e, on_g, on_c)
+        e, on_g, on_c = r[0], r[1], r[2]
+        defer_left -= r[15]
+    return e, on_g, on_c
 
 
 @njit(cache=True)
-def _simulate_year(poa, tcell, load, scale, p, out):
+def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, out):
     enom = p[P_ENOM]
-    e, on = _warm_up(poa, tcell, load, scale, p)
+    e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p)
     for k in range(N_METRICS):
         out[k] = 0.0
     soc_min = 1.0
     day_unmet = 0.0
     day_full = False
+    day_on = 0.0
+    day_evening_on = 0.0
     resid = 0.0
+    defer_day = unit_p[U_DEFER_WH] / scale
+    pump = unit_p[U_PUMP_W] / scale
+    sep = unit_p[U_SEP]
+    defer_left = 0.0
     for h in range(HOURS):
-        lw = load[h] / scale
-        was_on = on
-        r = _step(poa[h], tcell[h], lw, p, e, on)
-        e_new, on = r[0], r[1]
-        mpp, pv, direct, charge, spill, discharge, served, inv_loss, self_served, sd = r[2:]
+        hod = h % 24
+        if hod == 0:
+            defer_left = defer_day
+            out[22] += defer_day
+        gw = gen[h] / scale
+        cw = crit[h] / scale
+        lw = gw + cw
+        was_on = on_g
+        r = _step(poa[h], tcell[h], gw, cw, defer_left, pump, sep, p, e, on_g, on_c)
+        e_new, on_g, on_c = r[0], r[1], r[2]
+        (mpp, pv, direct, charge, spill, discharge, gen_served, crit_served, defer_served, inv_loss,
+         self_served, sd, defer_bus, defer_pv) = r[3:]
+        defer_left -= defer_bus
         resid += (e_new - e) - (charge * p[P_ETAC] - discharge / p[P_ETAD] - sd)
         e = e_new
+        served = gen_served + crit_served
         unmet = lw - served
         out[0] += lw
         out[1] += served
@@ -172,18 +242,24 @@ def _simulate_year(poa, tcell, load, scale, p, out):
             day_unmet += unmet
         if not was_on:
             out[4] += 1.0
-        hod = h % 24
+        else:
+            day_on += 1.0
         if hod >= EVENING_START and hod < EVENING_END:
             out[6] += lw
             out[7] += served
+            if was_on:
+                day_evening_on += 1.0
         out[8] += mpp
         out[9] += pv
-        out[10] += direct + charge
+        out[10] += direct + charge + defer_pv
         out[11] += spill
         out[12] += discharge
         out[13] += charge
         out[14] += self_served
         out[15] += inv_loss
+        out[20] += cw
+        out[21] += cw - crit_served
+        out[23] += defer_served
         soc = e / enom
         if soc < soc_min:
             soc_min = soc
@@ -195,15 +271,20 @@ def _simulate_year(poa, tcell, load, scale, p, out):
                 out[5] += 1.0
             if day_full:
                 out[18] += 1.0
+            for t in range(5):
+                if day_on >= TIER_HOURS[t] and day_evening_on >= TIER_EVENING_HOURS[t]:
+                    out[24 + t] += 1.0
             day_unmet = 0.0
             day_full = False
+            day_on = 0.0
+            day_evening_on = 0.0
     out[16] = soc_min
     out[17] /= HOURS
     out[19] = resid
 
 
 @njit(cache=True, parallel=True)
-def simulate_pairs(poa, tcell, loads, params, site_idx, unit_idx, kit_idx, scale):
+def simulate_pairs(poa, tcell, general, critical, unit_params, params, site_idx, unit_idx, kit_idx, scale):
     """Metrics for every (unit, kit) pair and weather year.
 
     Parameters
@@ -212,13 +293,16 @@ def simulate_pairs(poa, tcell, loads, params, site_idx, unit_idx, kit_idx, scale
         Plane-of-array irradiance, W/m², local clock hours.
     tcell : float32 array (n_sites, n_years, 8760)
         Cell temperature, degC.
-    loads : float32 array (n_units, 8760)
-        Load of one member of each unit, W (hourly mean).
+    general, critical : float32 arrays (n_units, 8760)
+        General and critical load of one member of each unit, W (hourly mean).
+    unit_params : float64 array (n_units, 3)
+        Per unit: deferrable energy per day (Wh), pump power (W), state-of-charge
+        separation between general-load shedding and the disconnect.
     params : float64 array (n_kits, 23)
         From :func:`fleet.kits.kernel_parameters`.
     site_idx, unit_idx, kit_idx : int64 arrays (n_pairs,)
     scale : float64 array (n_pairs,)
-        The load is divided by this (number of identical blocks sharing it).
+        Loads are divided by this (number of identical blocks sharing them).
 
     Returns
     -------
@@ -228,51 +312,72 @@ def simulate_pairs(poa, tcell, loads, params, site_idx, unit_idx, kit_idx, scale
     n_years = poa.shape[1]
     out = np.zeros((n_pairs, n_years, N_METRICS))
     for i in prange(n_pairs):
+        u = unit_idx[i]
         for y in range(n_years):
-            _simulate_year(poa[site_idx[i], y], tcell[site_idx[i], y], loads[unit_idx[i]], scale[i],
-                           params[kit_idx[i]], out[i, y])
+            _simulate_year(poa[site_idx[i], y], tcell[site_idx[i], y], general[u], critical[u], unit_params[u],
+                           scale[i], params[kit_idx[i]], out[i, y])
     return out
 
 
 TRACE_FIELDS = ("soc", "connected", "pv_mpp_w", "pv_bus_w", "direct_w", "charge_w", "spill_w",
-                "discharge_w", "load_w", "served_w", "inverter_loss_w", "self_served_w", "self_discharge_w")
+                "discharge_w", "load_w", "served_w", "inverter_loss_w", "self_served_w", "self_discharge_w",
+                "critical_load_w", "critical_served_w", "deferrable_served_w", "critical_connected",
+                "deferrable_from_pv_w")
 
 
 @njit(cache=True)
-def _trace(poa, tcell, load, scale, p):
+def _trace(poa, tcell, gen, crit, unit_p, scale, p):
     enom = p[P_ENOM]
-    e, on = _warm_up(poa, tcell, load, scale, p)
-    out = np.zeros((HOURS, 13))
+    e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p)
+    out = np.zeros((HOURS, 18))
     e0 = e
+    defer_left = 0.0
     for h in range(HOURS):
-        lw = load[h] / scale
-        r = _step(poa[h], tcell[h], lw, p, e, on)
-        out[h, 1] = 1.0 if on else 0.0
-        e, on = r[0], r[1]
+        if h % 24 == 0:
+            defer_left = unit_p[U_DEFER_WH] / scale
+        gw = gen[h] / scale
+        cw = crit[h] / scale
+        out[h, 1] = 1.0 if on_g else 0.0
+        out[h, 16] = 1.0 if on_c else 0.0
+        r = _step(poa[h], tcell[h], gw, cw, defer_left, unit_p[U_PUMP_W] / scale, unit_p[U_SEP], p, e, on_g, on_c)
+        e, on_g, on_c = r[0], r[1], r[2]
+        defer_left -= r[15]
         out[h, 0] = e / enom
-        out[h, 2] = r[2]
-        out[h, 3] = r[3]
-        out[h, 4] = r[4]
-        out[h, 5] = r[5]
-        out[h, 6] = r[6]
-        out[h, 7] = r[7]
-        out[h, 8] = lw
-        out[h, 9] = r[8]
-        out[h, 10] = r[9]
-        out[h, 11] = r[10]
-        out[h, 12] = r[11]
+        out[h, 2] = r[3]
+        out[h, 3] = r[4]
+        out[h, 4] = r[5]
+        out[h, 5] = r[6]
+        out[h, 6] = r[7]
+        out[h, 7] = r[8]
+        out[h, 8] = gw + cw
+        out[h, 9] = r[9] + r[10]
+        out[h, 10] = r[12]
+        out[h, 11] = r[13]
+        out[h, 12] = r[14]
+        out[h, 13] = cw
+        out[h, 14] = r[10]
+        out[h, 15] = r[11]
+        out[h, 17] = r[16]
     return out, e0
 
 
-def simulate_trace(poa_wm2, cell_temp_c, load_w, params_row, scale=1.0):
+def simulate_trace(poa_wm2, cell_temp_c, load_w, params_row, scale=1.0, critical_w=None,
+                   deferrable_wh_day=0.0, pump_w=0.0, shed_separation_soc=0.0):
     """Hour-by-hour flows of one kit over one weather year (for plots and checks).
 
-    Returns a dict of 8760-long arrays named as :data:`TRACE_FIELDS`
-    (powers in W = Wh per hour; ``connected`` is the state at the hour's
-    start) and ``initial_soc`` after the warm-up.
+    ``load_w`` is the general load (W); ``critical_w`` an optional critical
+    load kept on until the disconnect; ``deferrable_wh_day`` and ``pump_w`` a
+    deferrable daily need. Returns a dict of 8760-long arrays named as
+    :data:`TRACE_FIELDS` (powers in W = Wh per hour; ``connected`` and
+    ``critical_connected`` are the output states at the hour's start; ``load_w``
+    and ``served_w`` include the critical load) and ``initial_soc`` after the
+    warm-up.
     """
-    arr, e0 = _trace(np.asarray(poa_wm2, np.float32), np.asarray(cell_temp_c, np.float32),
-                     np.asarray(load_w, np.float32), float(scale), np.asarray(params_row, np.float64))
+    gen = np.asarray(load_w, np.float32)
+    crit = np.zeros_like(gen) if critical_w is None else np.asarray(critical_w, np.float32)
+    unit_p = np.array([deferrable_wh_day, pump_w, shed_separation_soc], np.float64)
+    arr, e0 = _trace(np.asarray(poa_wm2, np.float32), np.asarray(cell_temp_c, np.float32), gen, crit, unit_p,
+                     float(scale), np.asarray(params_row, np.float64))
     d = {name: arr[:, k] for k, name in enumerate(TRACE_FIELDS)}
     d["initial_soc"] = e0 / params_row[P_ENOM]
     return d

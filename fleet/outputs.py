@@ -71,8 +71,9 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
     label = c.assign(part=lambda d: np.where(d.scheme == "minigrid", d.blocks.astype(str) + " x " + d.kit_id,
                                              d.group + ": " + d["count"].astype(str) + " x " + d.kit_id))
     per_site["kits"] = label.groupby("site_id").part.agg("; ".join)
-    unserved = result.unserved.groupby("site_id").apply(
-        lambda g: "; ".join(f"{r.group}: {r.reason}" for r in g.itertuples()), include_groups=False)
+    un = result.unserved
+    unserved = (un.group.astype(str) + ": " + un.reason.astype(str)).groupby(un.site_id).agg("; ".join) \
+        if len(un) else pd.Series(dtype=object)
     demand_all = pd.Series(result.units.daily_energy_wh.to_numpy() * result.units["count"].to_numpy() / 1000.0,
                            index=result.units.site_id).groupby(level=0).sum()
     sites = sites.set_index("site_id", drop=False)

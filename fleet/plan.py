@@ -65,7 +65,8 @@ class PlanResult:
     comparisons: pd.DataFrame
     unserved: pd.DataFrame
     weather: Weather
-    loads_w: np.ndarray
+    demand: Any  # fleet.demand.UnitDemand
+    unit_params: np.ndarray
     warnings: list[str]
     timings_s: dict[str, float]
     rejected_designs: pd.DataFrame
@@ -147,7 +148,7 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
     smallest = kits.groupby("scheme").array_wp.min()
     for u_idx, u in enumerate(units.itertuples(index=False)):
         s_idx = u.site_index
-        demand_kwh = design.daily_energy_wh.iat[u_idx] * 365 / 1000.0
+        demand_kwh = (design.daily_energy_wh.iat[u_idx] + design.deferrable_wh_day.iat[u_idx]) * 365 / 1000.0
         peak = design.peak_power_w.iat[u_idx]
         site_target = sites["reliability_target"].iat[s_idx]
         site_target = target if not np.isfinite(site_target) else float(site_target)
@@ -176,16 +177,61 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
     return pairs, pd.DataFrame(screened, columns=["unit_id", "kit_id", "blocks", "reason"])
 
 
-def evaluate(pairs, metrics, units, design, kits, cfg) -> pd.DataFrame:
-    """Reliability and lifecycle cost of every simulated option."""
+def _ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
+    """num / den, 0 where den is 0 (nothing asked, nothing missing)."""
+    return np.divide(num, den, out=np.zeros_like(num, dtype=float), where=den > 0)
+
+
+def required_tier(units: pd.DataFrame, sites) -> np.ndarray:
+    """Tier whose hours of supply a unit must get: its own tier for SHS households, the
+    highest tier present at a minigrid village, 0 (none) for facilities and pumps."""
+    out = np.zeros(len(units), dtype=int)
+    for i, u in enumerate(units.itertuples(index=False)):
+        if u.group.startswith("t"):
+            out[i] = int(u.group[1])
+        elif u.group == "village":
+            s = sites.iloc[u.site_index]
+            present = [t for t in range(1, 6) if int(s[f"households_t{t}"]) > 0]
+            out[i] = max(present) if present else 0
+    return out
+
+
+def tier_achieved(supply_share: np.ndarray, share_needed: float, max_load_w: np.ndarray,
+                  served_wh_day: np.ndarray, household: np.ndarray) -> np.ndarray:
+    """Highest Multi-Tier Framework tier a unit gets in each year (0 = below tier 1).
+
+    A tier counts when its hours of supply and evening hours are met on at
+    least ``share_needed`` of days (``supply_share`` (..., 5)); for a solar home
+    system household also the kit's output rating must reach the tier's peak
+    capacity and the energy served per day its daily energy (ESMAP 2015). A
+    minigrid village is judged on hours of supply only.
+    """
+    from .demand import MTF_THRESHOLDS
+    achieved = np.zeros(supply_share.shape[:-1], dtype=int)
+    for t in range(1, 6):
+        ok = supply_share[..., t - 1] >= share_needed
+        cap_ok = (max_load_w >= MTF_THRESHOLDS[t]["peak_w"])[:, None] & (served_wh_day >= MTF_THRESHOLDS[t]["daily_wh"])
+        ok &= np.where(household[:, None], cap_ok, True)
+        achieved = np.where(ok & (achieved == t - 1), t, achieved)
+    return achieved
+
+
+def evaluate(pairs, metrics, units, design, kits, cfg, sites=None) -> pd.DataFrame:
+    """Reliability, service and lifecycle cost of every simulated option."""
     m = {name: metrics[:, :, j] for j, name in enumerate(dispatch.METRICS)}
     q = cfg["program"]["target_confidence"]
-    demand = np.maximum(m["demand_wh"], 1e-9)
-    unmet_frac = m["unmet_wh"] / demand
+    unmet_frac = _ratio(m["unmet_wh"], m["demand_wh"])
+    crit_frac = _ratio(m["critical_unmet_wh"], m["critical_demand_wh"])
+    defer_frac = _ratio(m["deferrable_demand_wh"] - m["deferrable_served_wh"], m["deferrable_demand_wh"])
     k = kits.iloc[pairs.kit_idx.to_numpy()].reset_index(drop=True)
     u = units.iloc[pairs.unit_idx.to_numpy()].reset_index(drop=True)
     blocks = pairs.blocks.to_numpy(dtype=float)
     mult = u["count"].to_numpy(dtype=float) * blocks  # kits or blocks bought for the unit
+    supply_share = np.stack([m[f"days_supply_tier{t}"] for t in range(1, 6)], axis=-1) / 365.0
+    household = u.group.str.match(r"t[1-5]$").to_numpy()
+    achieved = tier_achieved(supply_share, cfg["program"]["tier_days_share"], k.max_load_w.to_numpy(),
+                             m["served_wh"] / 365.0, household)
+    needed = required_tier(units, sites)[pairs.unit_idx.to_numpy()] if sites is not None else np.zeros(len(u), int)
     throughput = m["battery_discharge_wh"].mean(axis=1)
     life = battery.service_life_years(throughput, k.battery_nominal_wh.to_numpy(), k.usable_dod.to_numpy(),
                                       k.cycle_life_a.to_numpy(), k.cycle_life_b.to_numpy(),
@@ -202,6 +248,12 @@ def evaluate(pairs, metrics, units, design, kits, cfg) -> pd.DataFrame:
         "unit_id": u.unit_id, "site_id": u.site_id, "scheme": u.scheme, "group": u.group,
         "count": u["count"], "kit_id": k.kit_id, "blocks": pairs.blocks, "target": pairs.target,
         "unmet_fraction_design": _design_quantile(unmet_frac, q),
+        "critical_unmet_fraction_design": _design_quantile(crit_frac, q),
+        "deferrable_unmet_fraction_design": _design_quantile(defer_frac, q),
+        "tier_required": needed,
+        "tier_achieved_design": _design_quantile(achieved.astype(float), q, worse="low").astype(int),
+        "tier_hours_days_share_design": _design_quantile(
+            np.take_along_axis(supply_share, np.maximum(needed - 1, 0)[:, None, None], axis=-1)[..., 0], q, worse="low"),
         "unmet_fraction_mean": unmet_frac.mean(axis=1),
         "unmet_fraction_worst": unmet_frac.max(axis=1),
         "lolp_design": _design_quantile(m["unmet_hours"] / HOURS_PER_YEAR, q),
@@ -217,7 +269,13 @@ def evaluate(pairs, metrics, units, design, kits, cfg) -> pd.DataFrame:
         "lifecycle_cost_usd": lcc_one * mult,
         "balance_residual_wh": np.abs(m["balance_residual_wh"]).max(axis=1),
     })
-    out["feasible"] = out.unmet_fraction_design <= out.target + 1e-12
+    p_cfg = cfg["program"]
+    energy_ok = out.unmet_fraction_design <= out.target + 1e-12
+    tier_ok = out.tier_achieved_design >= out.tier_required
+    service_ok = {"unmet": energy_ok, "tier": tier_ok, "both": energy_ok & tier_ok}[p_cfg["service_target"]]
+    out["feasible"] = (service_ok
+                       & (out.critical_unmet_fraction_design <= p_cfg["critical_reliability_target"] + 1e-12)
+                       & (out.deferrable_unmet_fraction_design <= out.target + 1e-12))
     out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
         lcc_one * blocks, served_kwh_year, p["horizon_years"], p["discount_rate"])
     out["pair"] = np.arange(len(out))
@@ -236,7 +294,22 @@ def catalogue_options(ev: pd.DataFrame) -> pd.DataFrame:
     return pd.concat([shs, _best_block_counts(ev)], ignore_index=True).rename(columns={"lifecycle_cost_usd": "cost_usd"})
 
 
-def explain_unserved(units, ev, screened, catalogues, options) -> pd.DataFrame:
+def shortfall(row, cfg) -> str:
+    """What an option misses, in words."""
+    p = cfg["program"]
+    parts = []
+    if p["service_target"] in ("unmet", "both") and row.unmet_fraction_design > row.target + 1e-12:
+        parts.append(f"unmet energy {row.unmet_fraction_design:.1%} in the design year, target {row.target:.1%}")
+    if row.critical_unmet_fraction_design > p["critical_reliability_target"] + 1e-12:
+        parts.append(f"critical load unmet {row.critical_unmet_fraction_design:.1%}, target {p['critical_reliability_target']:.1%}")
+    if row.deferrable_unmet_fraction_design > row.target + 1e-12:
+        parts.append(f"deferrable energy unmet {row.deferrable_unmet_fraction_design:.1%}")
+    if p["service_target"] in ("tier", "both") and row.tier_achieved_design < row.tier_required:
+        parts.append(f"tier {row.tier_achieved_design} reached, tier {row.tier_required} required")
+    return "; ".join(parts) or "meets every target"
+
+
+def explain_unserved(units, ev, screened, catalogues, options, result_cfg=None) -> pd.DataFrame:
     """Why each unit without a kit has none, and the nearest option."""
     rows = []
     for u in units.itertuples(index=False):
@@ -251,9 +324,8 @@ def explain_unserved(units, ev, screened, catalogues, options) -> pd.DataFrame:
             rows.append((u.unit_id, u.site_id, u.scheme, u.group, u.count, reason, near.kit_id, near.unmet_fraction_design))
             continue
         if not mine.empty:
-            near = mine.sort_values("unmet_fraction_design").iloc[0]
-            reason = (f"no candidate meets the target: best is {near.kit_id} with unmet energy "
-                      f"{near.unmet_fraction_design:.1%} in the design year (target {near.target:.1%})")
+            near = mine.sort_values(["unmet_fraction_design", "critical_unmet_fraction_design"]).iloc[0]
+            reason = f"no candidate meets the target: nearest is {near.kit_id} ({shortfall(near, result_cfg)})"
             rows.append((u.unit_id, u.site_id, u.scheme, u.group, u.count, reason, near.kit_id, near.unmet_fraction_design))
         else:
             s = screened[screened.unit_id == u.unit_id]
@@ -304,8 +376,9 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     tracker.stage("demand")
     units = service_units(sites)
     offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
-    loads, design = unit_loads(sites, units, settings_from_config(cfg, tier_profiles), seed=cfg["program"]["seed"],
-                               utc_offsets_h=offsets)
+    demand = unit_loads(sites, units, settings_from_config(cfg, tier_profiles), seed=cfg["program"]["seed"],
+                        utc_offsets_h=offsets)
+    design = demand.design
     units = pd.concat([units, design], axis=1)
     timings["demand"] = time.perf_counter() - t
 
@@ -337,12 +410,12 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     t = time.perf_counter()
     tracker.stage(f"dispatch ({len(pairs)} options x {cfg['program']['weather_years']} years)")
-    metrics = simulate_chunked(weather, loads, params, pairs, tracker)
+    metrics = simulate_chunked(weather, demand, unit_parameters(units, cfg), params, pairs, tracker)
     timings["dispatch"] = time.perf_counter() - t
 
     t = time.perf_counter()
     tracker.stage("catalogue")
-    ev = evaluate(pairs, metrics, units, design, kits, cfg)
+    ev = evaluate(pairs, metrics, units, design, kits, cfg, sites)
     options = catalogue_options(ev)
     catalogues = {}
     c = cfg["catalogue"]
@@ -352,7 +425,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
             options[options.scheme == scheme][["unit_id", "kit_id", "cost_usd"]], scheme_units,
             max_types=c[f"max_kit_types_{scheme}"], cost_per_type_usd=c["cost_per_kit_type_usd"],
             solver=c["solver"], time_limit_s=c["time_limit_s"])
-    unserved = explain_unserved(units, ev, screened, catalogues, options)
+    unserved = explain_unserved(units, ev, screened, catalogues, options, cfg)
     comparisons = compare(ev, options, units, catalogues, cfg)
     timings["catalogue"] = time.perf_counter() - t
     for scheme, res in catalogues.items():
@@ -362,13 +435,23 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
         warnings.append(f"{len(unserved)} service unit(s) have no kit; see the 'unserved' table for reasons.")
 
     result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=catalogues,
-                        comparisons=comparisons, unserved=unserved, weather=weather, loads_w=loads,
+                        comparisons=comparisons, unserved=unserved, weather=weather, demand=demand,
+                        unit_params=unit_parameters(units, cfg),
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
     result.traces = representative_traces(result, params)
     return result
 
 
-def simulate_chunked(weather: Weather, loads, params, pairs: pd.DataFrame, tracker, chunk: int = 4000) -> np.ndarray:
+def unit_parameters(units: pd.DataFrame, cfg: ProgramConfig) -> np.ndarray:
+    """Per-unit kernel parameters: deferrable Wh/day, pump W and the state-of-charge
+    separation between shedding general loads and the disconnect (only for units
+    with a critical load)."""
+    sep = np.where(units.critical_wh_day.to_numpy() > 0, cfg["system"]["critical_shed_separation_soc"], 0.0)
+    return np.column_stack([units.deferrable_wh_day.to_numpy(float), units.pump_w.to_numpy(float), sep])
+
+
+def simulate_chunked(weather: Weather, demand, unit_params, params, pairs: pd.DataFrame, tracker,
+                     chunk: int = 4000) -> np.ndarray:
     """Run the kernel over the option list in chunks (progress and bounded peak memory)."""
     n = len(pairs)
     out = np.zeros((n, weather.poa_wm2.shape[1], dispatch.N_METRICS))
@@ -377,7 +460,7 @@ def simulate_chunked(weather: Weather, loads, params, pairs: pd.DataFrame, track
         b = min(a + chunk, n)
         sl = pairs.iloc[a:b]
         out[a:b] = dispatch.simulate_pairs(
-            weather.poa_wm2, weather.cell_temp_c, loads, params,
+            weather.poa_wm2, weather.cell_temp_c, demand.general_w, demand.critical_w, unit_params, params,
             sl.site_idx.to_numpy(np.int64), sl.unit_idx.to_numpy(np.int64), sl.kit_idx.to_numpy(np.int64),
             sl.blocks.to_numpy(np.float64))
     return out
@@ -411,8 +494,11 @@ def representative_traces(result: PlanResult, params: np.ndarray) -> dict[str, d
         # the design year is the year whose unmet fraction is the design quantile
         unmet = []
         for y in range(years):
+            up = result.unit_params[u_idx]
             tr = dispatch.simulate_trace(result.weather.poa_wm2[s_idx, y], result.weather.cell_temp_c[s_idx, y],
-                                         result.loads_w[u_idx], params[k_idx], float(pair.blocks))
+                                         result.demand.general_w[u_idx], params[k_idx], float(pair.blocks),
+                                         critical_w=result.demand.critical_w[u_idx], deferrable_wh_day=up[0],
+                                         pump_w=up[1], shed_separation_soc=up[2])
             unmet.append((tr["load_w"].sum() - tr["served_w"].sum(), y, tr))
         unmet.sort(key=lambda t: t[0])
         q = result.config["program"]["target_confidence"]

@@ -53,7 +53,7 @@ def _sites(**over):
 def test_minigrid_peak_is_below_summed_peaks_and_above_the_largest_single_load():
     sites = _sites()
     units = demand.service_units(sites)
-    loads, design = demand.unit_loads(sites, units, demand.DemandSettings(distribution_losses=0.0), seed=1)
+    _d = demand.unit_loads(sites, units, demand.DemandSettings(distribution_losses=0.0), seed=1); loads, design = _d.total_w, _d.design
     s = sites.iloc[0]
     singles = [demand.peak_power_w(demand.TIER_APPLIANCES[t]) for t in range(1, 6) if s[f"households_t{t}"] > 0]
     singles += [demand.peak_power_w(a) for a in demand.FACILITY_APPLIANCES.values()]
@@ -67,8 +67,8 @@ def test_minigrid_peak_is_below_summed_peaks_and_above_the_largest_single_load()
 def test_minigrid_energy_is_the_sum_of_its_members_and_losses_add_on_top():
     sites = _sites(health_posts=0, schools=0, productive_kwh_day=0.0)
     units = demand.service_units(sites)
-    loads0, d0 = demand.unit_loads(sites, units, QUIET, seed=3)
-    loads5, d5 = demand.unit_loads(sites, units, QUIET_LOSSES, seed=3)
+    _d = demand.unit_loads(sites, units, QUIET, seed=3); loads0, d0 = _d.total_w, _d.design
+    _d = demand.unit_loads(sites, units, QUIET_LOSSES, seed=3); loads5, d5 = _d.total_w, _d.design
     rise, sett = demand.sunrise_sunset_clock_h(0.5, 31.0, round(31.0 / 15))
     light = demand.lighting_duty(rise, sett)
     expected = sum(n * demand.member_year_w(f"t{t}", light, QUIET)[0].sum() / 365 for t, n in [(1, 40), (2, 30), (3, 10), (4, 2)])
@@ -86,9 +86,9 @@ def test_shs_site_gets_one_unit_per_tier_group_and_facility():
 def test_loads_are_reproducible_for_a_seed_and_differ_between_seeds():
     sites = _sites(scheme="shs")
     units = demand.service_units(sites)
-    a, _ = demand.unit_loads(sites, units, demand.DemandSettings(), seed=5)
-    b, _ = demand.unit_loads(sites, units, demand.DemandSettings(), seed=5)
-    c, _ = demand.unit_loads(sites, units, demand.DemandSettings(), seed=6)
+    _d = demand.unit_loads(sites, units, demand.DemandSettings(), seed=5); a, _ = _d.total_w, _d.design
+    _d = demand.unit_loads(sites, units, demand.DemandSettings(), seed=5); b, _ = _d.total_w, _d.design
+    _d = demand.unit_loads(sites, units, demand.DemandSettings(), seed=6); c, _ = _d.total_w, _d.design
     assert np.array_equal(a, b)
     assert not np.array_equal(a, c)
 
@@ -97,7 +97,7 @@ def test_school_load_is_zero_at_weekends():
     sites = _sites(scheme="shs", households_t1=0, households_t2=0, households_t3=0, households_t4=0,
                    health_posts=0, schools=1, productive_kwh_day=0.0)
     units = demand.service_units(sites)
-    loads, _ = demand.unit_loads(sites, units, demand.DemandSettings(common_sd=0.0), seed=1)
+    _d = demand.unit_loads(sites, units, demand.DemandSettings(common_sd=0.0), seed=1); loads, _ = _d.total_w, _d.design
     days = loads[0].reshape(365, 24).sum(axis=1)
     # 1 January 2025 was a Wednesday, so day 3 is Saturday (source: the Gregorian calendar)
     assert days[3] == 0 and days[4] == 0 and days[5] > 0
@@ -143,8 +143,8 @@ def test_demand_growth_compounds_to_the_design_year():
     units = demand.service_units(sites)
     base = demand.DemandSettings(household_sd=0.0, common_sd=0.0)
     grown = demand.DemandSettings(household_sd=0.0, common_sd=0.0, growth_pct_per_year=(3.0, 5.0, 0, 0, 0), design_year=10)
-    l0, d0 = demand.unit_loads(sites, units, base, seed=1)
-    l1, d1 = demand.unit_loads(sites, units, grown, seed=1)
+    _d = demand.unit_loads(sites, units, base, seed=1); l0, d0 = _d.total_w, _d.design
+    _d = demand.unit_loads(sites, units, grown, seed=1); l1, d1 = _d.total_w, _d.design
     # source: compound growth (1 + g)^n
     assert d1.daily_energy_wh.iat[0] / d0.daily_energy_wh.iat[0] == pytest.approx(1.03 ** 10, rel=1e-6)
     assert d1.daily_energy_wh.iat[1] / d0.daily_energy_wh.iat[1] == pytest.approx(1.05 ** 10, rel=1e-6)
@@ -155,7 +155,7 @@ def test_schools_are_off_in_closed_months():
     sites = _sites(scheme="shs", households_t1=0, households_t2=0, households_t3=0, households_t4=0,
                    health_posts=0, schools=1, productive_kwh_day=0.0)
     units = demand.service_units(sites)
-    loads, _ = demand.unit_loads(sites, units, demand.DemandSettings(school_closed_months=(4, 8)), seed=1)
+    _d = demand.unit_loads(sites, units, demand.DemandSettings(school_closed_months=(4, 8)), seed=1); loads, _ = _d.total_w, _d.design
     by_day = loads[0].reshape(365, 24).sum(axis=1)
     month = demand.MONTH_OF_DAY + 1
     assert by_day[(month == 4) | (month == 8)].max() == 0

@@ -32,10 +32,11 @@ def test_energy_balance_closes_every_hour(kits, params):
         poa = clear_days(700.0) * np.tile(np.r_[np.ones(5), np.full(3, 0.15)], 46)[:365].repeat(24)
         tc = np.full(8760, 40.0, np.float32)
         load = np.tile(np.r_[np.full(18, 0.2), np.full(5, 1.0), [0.2]], 365).astype(np.float32) * p[P_ENOM] / 20
-        tr = simulate_trace(poa, tc, load, p)
-        assert np.allclose(tr["pv_bus_w"], tr["direct_w"] + tr["charge_w"] + tr["spill_w"], atol=1e-6)
-        assert np.allclose(tr["direct_w"] + tr["discharge_w"],
-                           tr["served_w"] + tr["inverter_loss_w"] + tr["self_served_w"], atol=1e-6)
+        tr = simulate_trace(poa, tc, load, p, critical_w=load * 0.3, deferrable_wh_day=p[P_ENOM] * 0.2,
+                            pump_w=p[P_ENOM] * 0.05, shed_separation_soc=0.1)
+        assert np.allclose(tr["pv_bus_w"], tr["direct_w"] + tr["charge_w"] + tr["spill_w"] + tr["deferrable_from_pv_w"], atol=1e-6)
+        assert np.allclose(tr["direct_w"] + tr["discharge_w"] + tr["deferrable_from_pv_w"],
+                           tr["served_w"] + tr["deferrable_served_w"] + tr["inverter_loss_w"] + tr["self_served_w"], atol=1e-6)
         e = np.r_[tr["initial_soc"], tr["soc"]] * p[P_ENOM]
         flows = tr["charge_w"] * p[P_ETAC] - tr["discharge_w"] / p[P_ETAD] - tr["self_discharge_w"]
         assert np.allclose(np.diff(e), flows, atol=1e-6)
@@ -111,7 +112,8 @@ def test_batch_kernel_matches_the_hourly_trace(kits, params):
     p = params[idx]
     poa = clear_days(600.0)
     load = np.tile(np.r_[np.full(18, 2.0), np.full(5, 12.0), [2.0]], 365).astype(np.float32)
-    out = simulate_pairs(poa[None, None, :], np.full((1, 1, 8760), 30, np.float32), load[None, :], params,
+    out = simulate_pairs(poa[None, None, :], np.full((1, 1, 8760), 30, np.float32), load[None, :],
+                         np.zeros((1, 8760), np.float32), np.zeros((1, 3)), params,
                          np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([idx]), np.ones(1))
     m = dict(zip(dispatch.METRICS, out[0, 0]))
     tr = simulate_trace(poa, np.full(8760, 30, np.float32), load, p)
@@ -130,6 +132,63 @@ def test_n_blocks_sharing_a_load_equal_one_block_with_a_share():
     poa = clear_days(800.0)[None, None, :]
     tc = np.full_like(poa, 30)
     load = np.full((1, 8760), 2400.0, np.float32)
-    a = simulate_pairs(poa, tc, load, p, np.zeros(1, np.int64), np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([3.0]))
-    b = simulate_pairs(poa, tc, load / 3, p, np.zeros(1, np.int64), np.zeros(1, np.int64), np.zeros(1, np.int64), np.ones(1))
+    crit = np.full((1, 8760), 300.0, np.float32)
+    up = np.array([[6000.0, 1500.0, 0.1]])
+    a = simulate_pairs(poa, tc, load, crit, up, p, np.zeros(1, np.int64), np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([3.0]))
+    b = simulate_pairs(poa, tc, load / 3, crit / 3, up / [3, 3, 1], p, np.zeros(1, np.int64), np.zeros(1, np.int64),
+                       np.zeros(1, np.int64), np.ones(1))
     assert np.allclose(a, b, rtol=1e-5)
+
+
+def test_critical_load_stays_on_after_general_loads_are_shed(kits, params):
+    # common practice: two-stage load shedding keeps a vaccine refrigerator powered longer than lights
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    poa = clear_days(250.0)
+    gen = np.full(8760, 0.03 * p[P_ENOM], np.float32)
+    crit = np.full(8760, 0.005 * p[P_ENOM], np.float32)
+    tr = simulate_trace(poa, np.full(8760, 30, np.float32), gen, p, critical_w=crit, shed_separation_soc=0.1)
+    gen_off = tr["connected"] < 0.5
+    crit_off = tr["critical_connected"] < 0.5
+    assert gen_off.sum() > 0
+    assert crit_off.sum() < gen_off.sum()
+    assert not (crit_off & ~gen_off).any()  # the critical output is never on its own off
+    crit_unmet = (tr["critical_load_w"] - tr["critical_served_w"]).sum() / tr["critical_load_w"].sum()
+    gen_unmet = ((tr["load_w"] - tr["critical_load_w"]) - (tr["served_w"] - tr["critical_served_w"])).sum() / gen.sum()
+    assert crit_unmet < gen_unmet
+
+
+def test_deferrable_load_runs_within_the_day_when_energy_allows(kits, params):
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    days = 365
+    need = 0.1 * p[P_ENOM]
+    sunny = simulate_trace(clear_days(1000.0), np.full(8760, 25, np.float32), np.zeros(8760, np.float32), p,
+                           deferrable_wh_day=need, pump_w=need / 4)
+    per_day = sunny["deferrable_served_w"].reshape(days, 24).sum(axis=1)
+    assert np.allclose(per_day, need, rtol=1e-6)  # served in full, never more than the day's need
+    dull = simulate_trace(clear_days(60.0), np.full(8760, 25, np.float32), np.zeros(8760, np.float32), p,
+                          deferrable_wh_day=need, pump_w=need / 4)
+    assert dull["deferrable_served_w"].reshape(days, 24).sum(axis=1).max() < need  # shortfall shows up
+    from_battery = dull["deferrable_served_w"] - dull["deferrable_from_pv_w"] > 1e-9
+    assert from_battery.any()
+    # the pump never takes the battery below its threshold (self-discharge aside)
+    assert (dull["soc"][from_battery] >= dispatch.DEFER_MIN_SOC - 1e-3).all()
+
+
+def test_days_meeting_tier_hours_count_connected_hours(kits, params):
+    # source: ESMAP (2015) Beyond Connections: hours of supply per day and in the evening per tier
+    idx = _dc_pwm_kit(kits)
+    p = params[idx]
+    load = np.full(8760, 0.001 * p[P_ENOM], np.float32)
+    out = simulate_pairs(clear_days(1000.0)[None, None, :], np.full((1, 1, 8760), 25, np.float32), load[None, :],
+                         np.zeros((1, 8760), np.float32), np.zeros((1, 3)), params,
+                         np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([idx]), np.ones(1))
+    m = dict(zip(dispatch.METRICS, out[0, 0]))
+    assert m["disconnected_hours"] == 0
+    for t in range(1, 6):
+        assert m[f"days_supply_tier{t}"] == 365
+    dark = simulate_pairs(np.zeros((1, 1, 8760), np.float32), np.full((1, 1, 8760), 25, np.float32),
+                          np.full((1, 8760), 0.05 * p[P_ENOM], np.float32), np.zeros((1, 8760), np.float32),
+                          np.zeros((1, 3)), params, np.zeros(1, np.int64), np.zeros(1, np.int64), np.array([idx]), np.ones(1))
+    assert dict(zip(dispatch.METRICS, dark[0, 0]))["days_supply_tier1"] == 0
