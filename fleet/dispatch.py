@@ -37,7 +37,9 @@ demand = served + unmet.
 
 References
 ----------
-.. [1] Dobos, A. P. (2014). PVWatts Version 5 Manual. NREL/TP-6A20-62641.
+.. [1] De Soto, W., Klein, S. A., Beckman, W. A. (2006). Improvement and
+   validation of a model for photovoltaic array performance. Solar Energy
+   80(1):78-88 (single-diode model behind the array power tables).
 .. [2] IEEE 1562-2021, Guide for Array and Battery Sizing in Stand-Alone
    Photovoltaic (PV) Systems (loss-of-load and days of autonomy concepts).
 """
@@ -46,6 +48,8 @@ from __future__ import annotations
 
 import numpy as np
 from numba import njit, prange
+
+from .iv import table_lookup
 
 HOURS = 8760
 WARMUP_HOURS = 720  # the year's last 30 days run first to set the starting state of charge
@@ -67,7 +71,8 @@ N_METRICS = len(METRICS)
 M = {name: i for i, name in enumerate(METRICS)}
 # parameter columns (see fleet.kits.KERNEL_COLUMNS, plus reconnect SOC and array losses)
 (P_WP, P_MPPT, P_IMP, P_ALPHA, P_GAMMA, P_VCH, P_CEFF, P_CMAX, P_CSELF, P_ENOM, P_LVD, P_ETAC, P_ETAD,
- P_BCH, P_BDIS, P_SD, P_TAPER, P_ACC, P_MAXLOAD, P_IEFF, P_INL, P_LVR, P_LOSS) = range(23)
+ P_BCH, P_BDIS, P_SD, P_TAPER, P_ACC, P_MAXLOAD, P_IEFF, P_INL, P_LVR, P_LOSS, P_STRINGS, P_TABLE) = range(25)
+N_PARAMS = 25
 #: per-unit parameter columns: deferrable Wh per day, pump W, SOC separation of general-load shedding
 U_DEFER_WH, U_PUMP_W, U_SEP = range(3)
 #: Multi-Tier Framework minimum hours of supply per day and in the evening, tiers 1-5
@@ -77,28 +82,30 @@ TIER_EVENING_HOURS = np.array([1.0, 2.0, 3.0, 4.0, 4.0])
 
 
 @njit(cache=True, inline="always")
-def _array_power(g, tc, p):
-    """(power at maximum power point, power at the controller output), W."""
+def _array_power(g, tc, p, op_table, mp_table, grid):
+    """(power at the maximum power point, power at the controller output), W.
+
+    Per-string powers come from single-diode tables (:mod:`fleet.iv`): at the
+    battery's charging voltage for PWM/series/shunt controllers, at the
+    maximum power point inside the input window for MPPT. Array losses
+    (soiling, wiring, mismatch) scale the power; the controller's conversion
+    efficiency and current rating apply at its output.
+    """
     if g <= 0.0:
         return 0.0, 0.0
-    mpp = p[P_WP] * g / 1000.0 * (1.0 + p[P_GAMMA] * (tc - 25.0)) * (1.0 - p[P_LOSS])
-    if mpp < 0.0:
-        mpp = 0.0
-    if p[P_MPPT] > 0.5:
-        pv = mpp * p[P_CEFF]
-    else:
-        i_op = p[P_IMP] * g / 1000.0 * (1.0 + p[P_ALPHA] * (tc - 25.0)) * (1.0 - p[P_LOSS])
-        pv = min(i_op * p[P_VCH], mpp) * p[P_CEFF]
+    k = p[P_STRINGS] * (1.0 - p[P_LOSS])
+    mpp = k * table_lookup(mp_table, g, tc, grid[0], grid[1], grid[2], grid[3])
+    pv = k * table_lookup(op_table, g, tc, grid[0], grid[1], grid[2], grid[3]) * p[P_CEFF]
     if pv > p[P_CMAX]:
         pv = p[P_CMAX]
     return mpp, pv
 
 
 @njit(cache=True, inline="always")
-def _step(g, tc, gen_w, crit_w, defer_left, pump_w, sep, p, e, on_g, on_c):
+def _step(g, tc, gen_w, crit_w, defer_left, pump_w, sep, p, op_t, mp_t, grid, e, on_g, on_c):
     """One hour. Returns (e, on_g, on_c, flows...) with flows in Wh; see the module docstring."""
     enom = p[P_ENOM]
-    mpp, pv = _array_power(g, tc, p)
+    mpp, pv = _array_power(g, tc, p, op_t, mp_t, grid)
     ac = p[P_IEFF] < 1.0
     # 2. demand on the bus (critical first in line for the output rating)
     crit_cap = min(crit_w, p[P_MAXLOAD]) if on_c else 0.0
@@ -184,7 +191,7 @@ def _step(g, tc, gen_w, crit_w, defer_left, pump_w, sep, p, e, on_g, on_c):
 
 
 @njit(cache=True)
-def _warm_up(poa, tcell, gen, crit, unit_p, scale, p):
+def _warm_up(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid):
     """State after running the year's last WARMUP_HOURS from full charge."""
     e = p[P_ENOM]
     on_g = True
@@ -194,16 +201,16 @@ def _warm_up(poa, tcell, gen, crit, unit_p, scale, p):
         if h % 24 == 0:
             defer_left = unit_p[U_DEFER_WH] / scale
         r = _step(poa[h], tcell[h], gen[h] / scale, crit[h] / scale, defer_left, unit_p[U_PUMP_W] / scale,
-                  unit_p[U_SEP], p, e, on_g, on_c)
+                  unit_p[U_SEP], p, op_t, mp_t, grid, e, on_g, on_c)
         e, on_g, on_c = r[0], r[1], r[2]
         defer_left -= r[15]
     return e, on_g, on_c
 
 
 @njit(cache=True)
-def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, out):
+def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid, out):
     enom = p[P_ENOM]
-    e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p)
+    e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid)
     for k in range(N_METRICS):
         out[k] = 0.0
     soc_min = 1.0
@@ -225,7 +232,7 @@ def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, out):
         cw = crit[h] / scale
         lw = gw + cw
         was_on = on_g
-        r = _step(poa[h], tcell[h], gw, cw, defer_left, pump, sep, p, e, on_g, on_c)
+        r = _step(poa[h], tcell[h], gw, cw, defer_left, pump, sep, p, op_t, mp_t, grid, e, on_g, on_c)
         e_new, on_g, on_c = r[0], r[1], r[2]
         (mpp, pv, direct, charge, spill, discharge, gen_served, crit_served, defer_served, inv_loss,
          self_served, sd, defer_bus, defer_pv) = r[3:]
@@ -284,7 +291,8 @@ def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, out):
 
 
 @njit(cache=True, parallel=True)
-def simulate_pairs(poa, tcell, general, critical, unit_params, params, site_idx, unit_idx, kit_idx, scale):
+def simulate_pairs(poa, tcell, general, critical, unit_params, params, op_tables, mp_tables, grid,
+                   site_idx, unit_idx, kit_idx, scale):
     """Metrics for every (unit, kit) pair and weather year.
 
     Parameters
@@ -298,8 +306,13 @@ def simulate_pairs(poa, tcell, general, critical, unit_params, params, site_idx,
     unit_params : float64 array (n_units, 3)
         Per unit: deferrable energy per day (Wh), pump power (W), state-of-charge
         separation between general-load shedding and the disconnect.
-    params : float64 array (n_kits, 23)
-        From :func:`fleet.kits.kernel_parameters`.
+    params : float64 array (n_kits, N_PARAMS)
+        From :func:`fleet.kits.kernel_parameters` (with strings and table index).
+    op_tables, mp_tables : float64 arrays (n_tables, n_g, n_t)
+        Per-string array power at the controller's operating point and at the
+        maximum power point on the (irradiance, cell temperature) grid, W.
+    grid : float64 array (4,)
+        (g0, dg, t0, dt) of the tables' grid.
     site_idx, unit_idx, kit_idx : int64 arrays (n_pairs,)
     scale : float64 array (n_pairs,)
         Loads are divided by this (number of identical blocks sharing them).
@@ -313,9 +326,11 @@ def simulate_pairs(poa, tcell, general, critical, unit_params, params, site_idx,
     out = np.zeros((n_pairs, n_years, N_METRICS))
     for i in prange(n_pairs):
         u = unit_idx[i]
+        p = params[kit_idx[i]]
+        t = int(p[P_TABLE])
         for y in range(n_years):
             _simulate_year(poa[site_idx[i], y], tcell[site_idx[i], y], general[u], critical[u], unit_params[u],
-                           scale[i], params[kit_idx[i]], out[i, y])
+                           scale[i], p, op_tables[t], mp_tables[t], grid, out[i, y])
     return out
 
 
@@ -326,9 +341,9 @@ TRACE_FIELDS = ("soc", "connected", "pv_mpp_w", "pv_bus_w", "direct_w", "charge_
 
 
 @njit(cache=True)
-def _trace(poa, tcell, gen, crit, unit_p, scale, p):
+def _trace(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid):
     enom = p[P_ENOM]
-    e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p)
+    e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid)
     out = np.zeros((HOURS, 18))
     e0 = e
     defer_left = 0.0
@@ -339,7 +354,8 @@ def _trace(poa, tcell, gen, crit, unit_p, scale, p):
         cw = crit[h] / scale
         out[h, 1] = 1.0 if on_g else 0.0
         out[h, 16] = 1.0 if on_c else 0.0
-        r = _step(poa[h], tcell[h], gw, cw, defer_left, unit_p[U_PUMP_W] / scale, unit_p[U_SEP], p, e, on_g, on_c)
+        r = _step(poa[h], tcell[h], gw, cw, defer_left, unit_p[U_PUMP_W] / scale, unit_p[U_SEP], p, op_t, mp_t, grid,
+                  e, on_g, on_c)
         e, on_g, on_c = r[0], r[1], r[2]
         defer_left -= r[15]
         out[h, 0] = e / enom
@@ -361,13 +377,14 @@ def _trace(poa, tcell, gen, crit, unit_p, scale, p):
     return out, e0
 
 
-def simulate_trace(poa_wm2, cell_temp_c, load_w, params_row, scale=1.0, critical_w=None,
+def simulate_trace(poa_wm2, cell_temp_c, load_w, params_row, tables, scale=1.0, critical_w=None,
                    deferrable_wh_day=0.0, pump_w=0.0, shed_separation_soc=0.0):
     """Hour-by-hour flows of one kit over one weather year (for plots and checks).
 
     ``load_w`` is the general load (W); ``critical_w`` an optional critical
     load kept on until the disconnect; ``deferrable_wh_day`` and ``pump_w`` a
-    deferrable daily need. Returns a dict of 8760-long arrays named as
+    deferrable daily need. ``tables`` is the :class:`fleet.iv.KitTables` the
+    parameters' table index refers to. Returns a dict of 8760-long arrays named as
     :data:`TRACE_FIELDS` (powers in W = Wh per hour; ``connected`` and
     ``critical_connected`` are the output states at the hour's start; ``load_w``
     and ``served_w`` include the critical load) and ``initial_soc`` after the
@@ -376,8 +393,10 @@ def simulate_trace(poa_wm2, cell_temp_c, load_w, params_row, scale=1.0, critical
     gen = np.asarray(load_w, np.float32)
     crit = np.zeros_like(gen) if critical_w is None else np.asarray(critical_w, np.float32)
     unit_p = np.array([deferrable_wh_day, pump_w, shed_separation_soc], np.float64)
+    p = np.asarray(params_row, np.float64)
+    t = int(p[P_TABLE])
     arr, e0 = _trace(np.asarray(poa_wm2, np.float32), np.asarray(cell_temp_c, np.float32), gen, crit, unit_p,
-                     float(scale), np.asarray(params_row, np.float64))
+                     float(scale), p, tables.p_operating_w[t], tables.p_mp_w[t], tables.grid)
     d = {name: arr[:, k] for k, name in enumerate(TRACE_FIELDS)}
     d["initial_soc"] = e0 / params_row[P_ENOM]
     return d

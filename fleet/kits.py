@@ -339,10 +339,13 @@ KERNEL_COLUMNS = (
 )
 
 
-def kernel_parameters(kits: pd.DataFrame, *, reconnect_hysteresis_soc: float, pv_losses_fraction: float) -> np.ndarray:
-    """Float64 matrix (n_kits, len(KERNEL_COLUMNS) + 2) for :mod:`fleet.dispatch`;
-    the last two columns are the reconnect SOC and the array loss fraction."""
+def kernel_parameters(kits: pd.DataFrame, tables, *, reconnect_hysteresis_soc: float,
+                      pv_losses_fraction: float) -> np.ndarray:
+    """Float64 matrix (n_kits, len(KERNEL_COLUMNS) + 4) for :mod:`fleet.dispatch`;
+    the last four columns are the reconnect SOC, the array loss fraction, the
+    strings in parallel and the row of the kit's array power table in
+    ``tables`` (a :class:`fleet.iv.KitTables`)."""
     p = kits.loc[:, list(KERNEL_COLUMNS)].to_numpy(dtype=np.float64)
     lvr = np.minimum(kits["soc_lvd"].to_numpy() + reconnect_hysteresis_soc, 0.95)
     loss = np.full(len(kits), pv_losses_fraction)
-    return np.column_stack([p, lvr, loss])
+    return np.column_stack([p, lvr, loss, np.asarray(tables.strings, float), np.asarray(tables.table_index, float)])

@@ -21,6 +21,7 @@ from .components import ComponentLibrary
 from .config import ProgramConfig
 from .demand import HOURS_PER_YEAR, service_units, settings_from_config, unit_loads
 from .errors import InputError, Problem
+from .iv import tables_for_kits
 from .kits import DesignConditions, candidate_kits, kernel_parameters
 from .resource import site_weather, utc_offset_hours
 
@@ -404,13 +405,15 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     s = cfg["system"]
     cond = DesignConditions(cold_ambient_c=cold, hot_cell_c=s["design_cell_temp_hot_c"])
     kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
-    params = kernel_parameters(kits, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"], pv_losses_fraction=cfg["pv"]["losses_fraction"])
+    tables = tables_for_kits(kits, library)
+    params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
+                               pv_losses_fraction=cfg["pv"]["losses_fraction"])
     pairs, screened = build_pairs(units, design, kits, weather, sites, cfg)
     timings["kits"] = time.perf_counter() - t
 
     t = time.perf_counter()
     tracker.stage(f"dispatch ({len(pairs)} options x {cfg['program']['weather_years']} years)")
-    metrics = simulate_chunked(weather, demand, unit_parameters(units, cfg), params, pairs, tracker)
+    metrics = simulate_chunked(weather, demand, unit_parameters(units, cfg), params, tables, pairs, tracker)
     timings["dispatch"] = time.perf_counter() - t
 
     t = time.perf_counter()
@@ -438,7 +441,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
                         comparisons=comparisons, unserved=unserved, weather=weather, demand=demand,
                         unit_params=unit_parameters(units, cfg),
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
-    result.traces = representative_traces(result, params)
+    result.traces = representative_traces(result, params, tables)
     return result
 
 
@@ -450,7 +453,7 @@ def unit_parameters(units: pd.DataFrame, cfg: ProgramConfig) -> np.ndarray:
     return np.column_stack([units.deferrable_wh_day.to_numpy(float), units.pump_w.to_numpy(float), sep])
 
 
-def simulate_chunked(weather: Weather, demand, unit_params, params, pairs: pd.DataFrame, tracker,
+def simulate_chunked(weather: Weather, demand, unit_params, params, tables, pairs: pd.DataFrame, tracker,
                      chunk: int = 4000) -> np.ndarray:
     """Run the kernel over the option list in chunks (progress and bounded peak memory)."""
     n = len(pairs)
@@ -461,6 +464,7 @@ def simulate_chunked(weather: Weather, demand, unit_params, params, pairs: pd.Da
         sl = pairs.iloc[a:b]
         out[a:b] = dispatch.simulate_pairs(
             weather.poa_wm2, weather.cell_temp_c, demand.general_w, demand.critical_w, unit_params, params,
+            tables.p_operating_w, tables.p_mp_w, tables.grid,
             sl.site_idx.to_numpy(np.int64), sl.unit_idx.to_numpy(np.int64), sl.kit_idx.to_numpy(np.int64),
             sl.blocks.to_numpy(np.float64))
     return out
@@ -476,7 +480,7 @@ def assigned_options(result: PlanResult) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True) if parts else opts.iloc[0:0]
 
 
-def representative_traces(result: PlanResult, params: np.ndarray) -> dict[str, dict]:
+def representative_traces(result: PlanResult, params: np.ndarray, tables) -> dict[str, dict]:
     """A year of state of charge at a median site per scheme, in its design weather year."""
     out = {}
     chosen = assigned_options(result)
@@ -496,7 +500,7 @@ def representative_traces(result: PlanResult, params: np.ndarray) -> dict[str, d
         for y in range(years):
             up = result.unit_params[u_idx]
             tr = dispatch.simulate_trace(result.weather.poa_wm2[s_idx, y], result.weather.cell_temp_c[s_idx, y],
-                                         result.demand.general_w[u_idx], params[k_idx], float(pair.blocks),
+                                         result.demand.general_w[u_idx], params[k_idx], tables, float(pair.blocks),
                                          critical_w=result.demand.critical_w[u_idx], deferrable_wh_day=up[0],
                                          pump_w=up[1], shed_separation_soc=up[2])
             unmet.append((tr["load_w"].sum() - tr["served_w"].sum(), y, tr))

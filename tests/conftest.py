@@ -7,6 +7,7 @@ import pytest
 
 from fleet.components import read_library
 from fleet.config import load_config
+from fleet.iv import tables_for_kits
 from fleet.kits import DesignConditions, candidate_kits, kernel_parameters
 
 
@@ -27,5 +28,10 @@ def kits(library):
 
 
 @pytest.fixture(scope="session")
-def params(kits):
-    return kernel_parameters(kits[0], reconnect_hysteresis_soc=0.15, pv_losses_fraction=0.14)
+def tables(kits, library):
+    return tables_for_kits(kits[0], library)
+
+
+@pytest.fixture(scope="session")
+def params(kits, tables):
+    return kernel_parameters(kits[0], tables, reconnect_hysteresis_soc=0.15, pv_losses_fraction=0.14)
