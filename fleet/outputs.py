@@ -61,13 +61,18 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
     c["battery_kwh"] = c.kit_id.map(kits.battery_nominal_wh) * c.kits_bought / 1000.0
     c["demand_kwh_day"] = c.daily_energy_wh * c["count"] / 1000.0
     c["unmet_kwh_day"] = c.demand_kwh_day * c.unmet_fraction_design
+    c["critical_kwh_day"] = c.unit_id.map(units.set_index("unit_id").critical_wh_day) * c["count"] / 1000.0
+    c["critical_unmet_kwh_day"] = c.critical_kwh_day * c.critical_unmet_fraction_design
+    c["tier_shortfall"] = np.where(c.tier_achieved_design < c.tier_required, c["count"], 0)
     sites = result.sites.copy()
     hh = sites[[f"households_t{t}" for t in range(1, 6)]].sum(axis=1)
 
     per_site = c.groupby("site_id").agg(
         kits_bought=("kits_bought", "sum"), array_kwp=("array_kwp", "sum"), battery_kwh=("battery_kwh", "sum"),
         capex_usd=("capex_usd", "sum"), lifecycle_cost_usd=("cost_usd", "sum"),
-        demand_kwh_day=("demand_kwh_day", "sum"), unmet_kwh_day=("unmet_kwh_day", "sum"))
+        demand_kwh_day=("demand_kwh_day", "sum"), unmet_kwh_day=("unmet_kwh_day", "sum"),
+        critical_kwh_day=("critical_kwh_day", "sum"), critical_unmet_kwh_day=("critical_unmet_kwh_day", "sum"),
+        lowest_tier_reached=("tier_achieved_design", "min"), below_tier=("tier_shortfall", "sum"))
     label = c.assign(part=lambda d: np.where(d.scheme == "minigrid", d.blocks.astype(str) + " x " + d.kit_id,
                                              d.group + ": " + d["count"].astype(str) + " x " + d.kit_id))
     per_site["kits"] = label.groupby("site_id").part.agg("; ".join)
@@ -84,6 +89,9 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
     plan_cols["battery_kwh"] = per_site.battery_kwh.reindex(sites.index).fillna(0.0)
     plan_cols["demand_kwh_day"] = demand_all.reindex(sites.index).fillna(0.0)
     plan_cols["unmet_fraction_design"] = (per_site.unmet_kwh_day / per_site.demand_kwh_day.replace(0, np.nan)).reindex(sites.index)
+    plan_cols["critical_unmet_fraction_design"] = (per_site.critical_unmet_kwh_day / per_site.critical_kwh_day.replace(0, np.nan)).reindex(sites.index)
+    plan_cols["lowest_tier_reached"] = per_site.lowest_tier_reached.reindex(sites.index)
+    plan_cols["households_below_their_tier"] = per_site.below_tier.reindex(sites.index).fillna(0).astype(int)
     plan_cols["capex_usd"] = per_site.capex_usd.reindex(sites.index).fillna(0.0)
     plan_cols["lifecycle_cost_usd"] = per_site.lifecycle_cost_usd.reindex(sites.index).fillna(0.0)
     plan_cols["households"] = hh.to_numpy()
@@ -154,6 +162,9 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         ("cost per kWh served (LCOE)", _program_lcoe(c, result), "USD/kWh"),
         ("unmet energy in the design weather year", 100 * float(c.unmet_kwh_day.sum()) / max(served_demand, 1e-9), "% of demand of served units"),
         ("demand of units with no kit", total_demand - served_demand, "kWh/day"),
+        ("critical load unmet in the design weather year", 100 * float(c.critical_unmet_kwh_day.sum()) / max(float(c.critical_kwh_day.sum()), 1e-9), "% of critical demand"),
+        (f"households or units short of their tier's hours of supply on {result.config['program']['tier_days_share']:.0%} of days",
+         int(c.tier_shortfall.sum()), "households or units"),
         ("service units with no kit", len(result.unserved), "units"),
     ], columns=["metric", "value", "unit"])
     sites_table = per_site_full.reset_index(drop=True).rename(columns={
@@ -161,11 +172,34 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         "demand_kwh_day": "demand (kWh/day)", "unmet_fraction_design": "unmet energy, design year (fraction)",
         "capex_usd": "capex (USD)", "lifecycle_cost_usd": "lifecycle cost (USD)",
         "cost_per_household_usd": "cost per household (USD)", "not_served": "not served (reason)",
+        "critical_unmet_fraction_design": "critical load unmet, design year (fraction)",
+        "lowest_tier_reached": "lowest tier reached, design year",
+        "households_below_their_tier": "households or units below their tier (count)",
         "ghi_kwh_m2_day": "GHI (kWh/m2/day)", "temp_mean_default_used": "default temperature used"})
     unserved_table = result.unserved.rename(columns={"nearest_unmet_fraction_design": "nearest option unmet energy (fraction)"})
-    return {"program": program, "by_district": by_district, "by_depot": by_depot, "sites": sites_table,
+    return {"program": program, "demand_by_tier": demand_by_tier(result), "by_district": by_district, "by_depot": by_depot, "sites": sites_table,
             "kit_types": kit_types, "comparisons": result.comparisons, "unserved": unserved_table,
             "_bom": bom, "_kit_counts": kit_counts, "_site_layer": site_layer, "_chosen": c}
+
+
+def demand_by_tier(result: PlanResult) -> pd.DataFrame:
+    """Design-year demand by service group and scheme: members, energy and peak per member."""
+    u = result.units
+    members = u["count"].where(u.group != "village", 1)
+    t = u.assign(members=members, energy=u.daily_energy_wh * u["count"] / 1000.0,
+                 first=u.first_year_daily_energy_wh * u["count"] / 1000.0,
+                 critical=u.critical_wh_day * u["count"] / 1000.0, deferrable=u.deferrable_wh_day * u["count"] / 1000.0)
+    g = t.groupby(["scheme", "group"])
+    out = pd.DataFrame({
+        "units or households": g.members.sum(),
+        "first-year demand (kWh/day)": g["first"].sum(),
+        "design-year demand (kWh/day)": g.energy.sum(),
+        "critical part (kWh/day)": g.critical.sum(),
+        "deferrable (kWh/day)": g.deferrable.sum(),
+        "demand per member (Wh/day)": 1000 * g.energy.sum() / g.members.sum(),
+        "design peak per member (W)": g.apply(lambda d: float(np.average(d.peak_power_w, weights=d["count"])), include_groups=False),
+    })
+    return out.reset_index()
 
 
 def _program_lcoe(c: pd.DataFrame, result: PlanResult) -> float:
