@@ -51,3 +51,54 @@ def test_every_unit_is_served_or_explained_and_targets_hold(tiny_sites, library,
             if k:
                 assert (ev.loc[(u, k)].unmet_fraction_design <= 0.05 + 1e-12).any()
     assert r.evaluations.balance_residual_wh.max() < 1e-3
+
+
+def _metrics(n_pairs, years, **values):
+    from fleet import dispatch
+    m = np.zeros((n_pairs, years, dispatch.N_METRICS))
+    m[..., dispatch.M["demand_wh"]] = 1000.0
+    for name, v in values.items():
+        m[..., dispatch.M[name]] = np.broadcast_to(np.asarray(v, dtype=float), (n_pairs, years))
+    return m
+
+
+def _frames(config, groups, critical):
+    from fleet.plan import evaluate
+    units = pd.DataFrame({"unit_id": [f"u{i}" for i in range(len(groups))], "site_id": "A", "scheme": "shs",
+                          "group": groups, "count": 1, "site_index": 0, "critical_wh_day": critical})
+    kits = pd.DataFrame({"kit_id": ["k"], "battery_nominal_wh": [1000.0], "usable_dod": [0.5], "cycle_life_a": [300.0],
+                         "cycle_life_b": [1.0], "calendar_life_years": [5.0], "capex_usd": [100.0],
+                         "battery_capex_usd": [30.0], "controller_capex_usd": [10.0], "inverter_capex_usd": [0.0],
+                         "max_load_w": [500.0]})
+    pairs = pd.DataFrame({"unit_idx": range(len(groups)), "kit_idx": 0, "site_idx": 0, "blocks": 1, "target": 0.05})
+    sites = pd.DataFrame({f"households_t{t}": [1] for t in range(1, 6)})
+    return lambda metrics, cfg=config: evaluate(pairs, metrics, units, None, kits, cfg, sites)
+
+
+def test_the_critical_load_target_is_enforced_on_its_own(config):
+    ev = _frames(config, ["health_post", "health_post"], [500.0, 500.0])
+    # both meet the energy target; the second misses the critical target (1 %) with 2 % critical unmet
+    out = ev(_metrics(2, 2, unmet_wh=[[10, 10], [10, 10]], critical_demand_wh=500, critical_unmet_wh=[[0, 0], [10, 10]]))
+    assert list(out.feasible) == [True, False]
+    assert out.critical_unmet_fraction_design.iloc[1] == pytest.approx(0.02)
+
+
+def test_a_tier_target_needs_the_tier_hours_on_the_required_share_of_days(config):
+    cfg = config.with_overrides(program={"service_target": "tier", "tier_days_share": 0.9})
+    ev = _frames(cfg, ["t2", "t2"], [0.0, 0.0])
+    full = {f"days_supply_tier{t}": 365 for t in range(1, 6)}
+    short = dict(full, days_supply_tier2=300, days_supply_tier3=300, days_supply_tier4=300, days_supply_tier5=300)
+    m = np.concatenate([_metrics(1, 2, served_wh=365 * 400, **full), _metrics(1, 2, served_wh=365 * 400, **short)])
+    out = ev(m)
+    # source: ESMAP (2015) Beyond Connections: tier 2 needs 4 h of supply including 2 evening hours,
+    # 200 Wh/day and 50 W; 300 of 365 days (82 %) falls short of a 90 % share of days
+    assert list(out.tier_required) == [2, 2]
+    assert out.tier_achieved_design.iloc[0] >= 2 and out.tier_achieved_design.iloc[1] == 1
+    assert list(out.feasible) == [True, False]
+
+
+def test_deferrable_shortfall_makes_an_option_infeasible(config):
+    ev = _frames(config, ["t1"], [0.0])
+    out = ev(_metrics(1, 2, deferrable_demand_wh=1000, deferrable_served_wh=[[800, 800]]))
+    assert out.deferrable_unmet_fraction_design.iloc[0] == pytest.approx(0.2)
+    assert not out.feasible.iloc[0]
