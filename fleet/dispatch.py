@@ -209,27 +209,34 @@ def _warm_up(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid):
 
 @njit(cache=True)
 def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid, out):
+    # sums are kept in scalars (registers) and written to ``out`` once, at the end
     enom = p[P_ENOM]
     e, on_g, on_c = _warm_up(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid)
-    for k in range(N_METRICS):
-        out[k] = 0.0
+    demand = served_sum = unmet_sum = unmet_h = off_h = full_days = 0.0
+    ev_demand = ev_served = mpp_sum = pv_sum = used = spill_sum = dis_sum = ch_sum = 0.0
+    self_sum = inv_sum = soc_sum = full_charge_days = resid = 0.0
+    crit_demand = crit_unmet = defer_demand = defer_served_sum = 0.0
+    d1 = d2 = d3 = d4 = d5 = 0.0
     soc_min = 1.0
     day_unmet = 0.0
     day_full = False
     day_on = 0.0
     day_evening_on = 0.0
-    resid = 0.0
-    defer_day = unit_p[U_DEFER_WH] / scale
-    pump = unit_p[U_PUMP_W] / scale
+    inv_scale = 1.0 / scale
+    defer_day = unit_p[U_DEFER_WH] * inv_scale
+    pump = unit_p[U_PUMP_W] * inv_scale
     sep = unit_p[U_SEP]
+    eta_c = p[P_ETAC]
+    inv_eta_d = 1.0 / p[P_ETAD]
+    inv_enom = 1.0 / enom
     defer_left = 0.0
     for h in range(HOURS):
         hod = h % 24
         if hod == 0:
             defer_left = defer_day
-            out[22] += defer_day
-        gw = gen[h] / scale
-        cw = crit[h] / scale
+            defer_demand += defer_day
+        gw = gen[h] * inv_scale
+        cw = crit[h] * inv_scale
         lw = gw + cw
         was_on = on_g
         r = _step(poa[h], tcell[h], gw, cw, defer_left, pump, sep, p, op_t, mp_t, grid, e, on_g, on_c)
@@ -237,57 +244,90 @@ def _simulate_year(poa, tcell, gen, crit, unit_p, scale, p, op_t, mp_t, grid, ou
         (mpp, pv, direct, charge, spill, discharge, gen_served, crit_served, defer_served, inv_loss,
          self_served, sd, defer_bus, defer_pv) = r[3:]
         defer_left -= defer_bus
-        resid += (e_new - e) - (charge * p[P_ETAC] - discharge / p[P_ETAD] - sd)
+        resid += (e_new - e) - (charge * eta_c - discharge * inv_eta_d - sd)
         e = e_new
         served = gen_served + crit_served
         unmet = lw - served
-        out[0] += lw
-        out[1] += served
-        out[2] += unmet
+        demand += lw
+        served_sum += served
+        unmet_sum += unmet
         if unmet > 1e-6 * (lw + 1e-9) and unmet > 1e-9:
-            out[3] += 1.0
+            unmet_h += 1.0
             day_unmet += unmet
         if not was_on:
-            out[4] += 1.0
+            off_h += 1.0
         else:
             day_on += 1.0
         if hod >= EVENING_START and hod < EVENING_END:
-            out[6] += lw
-            out[7] += served
+            ev_demand += lw
+            ev_served += served
             if was_on:
                 day_evening_on += 1.0
-        out[8] += mpp
-        out[9] += pv
-        out[10] += direct + charge + defer_pv
-        out[11] += spill
-        out[12] += discharge
-        out[13] += charge
-        out[14] += self_served
-        out[15] += inv_loss
-        out[20] += cw
-        out[21] += cw - crit_served
-        out[23] += defer_served
-        soc = e / enom
+        mpp_sum += mpp
+        pv_sum += pv
+        used += direct + charge + defer_pv
+        spill_sum += spill
+        dis_sum += discharge
+        ch_sum += charge
+        self_sum += self_served
+        inv_sum += inv_loss
+        crit_demand += cw
+        crit_unmet += cw - crit_served
+        defer_served_sum += defer_served
+        soc = e * inv_enom
         if soc < soc_min:
             soc_min = soc
-        out[17] += soc
+        soc_sum += soc
         if soc >= 0.99:
             day_full = True
         if hod == 23:
             if day_unmet <= 0.0:
-                out[5] += 1.0
+                full_days += 1.0
             if day_full:
-                out[18] += 1.0
-            for t in range(5):
-                if day_on >= TIER_HOURS[t] and day_evening_on >= TIER_EVENING_HOURS[t]:
-                    out[24 + t] += 1.0
+                full_charge_days += 1.0
+            if day_on >= TIER_HOURS[0] and day_evening_on >= TIER_EVENING_HOURS[0]:
+                d1 += 1.0
+            if day_on >= TIER_HOURS[1] and day_evening_on >= TIER_EVENING_HOURS[1]:
+                d2 += 1.0
+            if day_on >= TIER_HOURS[2] and day_evening_on >= TIER_EVENING_HOURS[2]:
+                d3 += 1.0
+            if day_on >= TIER_HOURS[3] and day_evening_on >= TIER_EVENING_HOURS[3]:
+                d4 += 1.0
+            if day_on >= TIER_HOURS[4] and day_evening_on >= TIER_EVENING_HOURS[4]:
+                d5 += 1.0
             day_unmet = 0.0
             day_full = False
             day_on = 0.0
             day_evening_on = 0.0
+    out[0] = demand
+    out[1] = served_sum
+    out[2] = unmet_sum
+    out[3] = unmet_h
+    out[4] = off_h
+    out[5] = full_days
+    out[6] = ev_demand
+    out[7] = ev_served
+    out[8] = mpp_sum
+    out[9] = pv_sum
+    out[10] = used
+    out[11] = spill_sum
+    out[12] = dis_sum
+    out[13] = ch_sum
+    out[14] = self_sum
+    out[15] = inv_sum
     out[16] = soc_min
-    out[17] /= HOURS
+    out[17] = soc_sum / HOURS
+    out[18] = full_charge_days
     out[19] = resid
+    out[20] = crit_demand
+    out[21] = crit_unmet
+    out[22] = defer_demand
+    out[23] = defer_served_sum
+    out[24] = d1
+    out[25] = d2
+    out[26] = d3
+    out[27] = d4
+    out[28] = d5
 
 
 @njit(cache=True, parallel=True)
