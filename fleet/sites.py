@@ -32,7 +32,10 @@ Optional columns (default in brackets)
 ``design_temp_min_c`` and ``temp_mean_c`` (NaN, degC: use the programme
 default), ``weather_file`` (empty text: no user weather data),
 ``reliability_target`` (NaN: use the programme's; a fraction in (0, 1), the
-largest acceptable unmet share of energy demand).
+largest acceptable unmet share of energy demand), ``ghi_correction`` (NaN: use
+the programme's ``resource.correction_factor``; a multiplier 0.3..1.5 on the
+embedded reanalysis irradiance at this site, e.g. from a comparison with local
+measurements; it does not scale the site's own weather data).
 
 Any other column is carried through untouched, after the contract columns and
 in its original order. Column names are matched after stripping surrounding
@@ -86,6 +89,7 @@ OPTIONAL_COLUMNS: dict[str, object] = {
     "temp_mean_c": math.nan,
     "weather_file": "",
     "reliability_target": math.nan,
+    "ghi_correction": math.nan,
 }
 
 #: Order of the contract columns in a validated frame.
@@ -105,6 +109,7 @@ CONTRACT_COLUMNS: tuple[str, ...] = (
     "temp_mean_c",
     "weather_file",
     "reliability_target",
+    "ghi_correction",
 )
 
 #: Accepted values of ``scheme``.
@@ -116,6 +121,10 @@ _TEMPERATURE_COLUMNS = ("design_temp_min_c", "temp_mean_c")
 # Plausible air temperatures at a populated site, degC. Outside this range a
 # value is far more likely a unit or typing slip (e.g. kelvin) than real.
 _TEMPERATURE_RANGE_C = (-50.0, 60.0)
+# Accepted multipliers on the embedded irradiance. Reanalysis bias is rarely
+# beyond tens of percent; a value outside this range is more likely a
+# percentage or a typing slip than a real correction.
+_GHI_CORRECTION_RANGE = (0.3, 1.5)
 # Largest disagreement tolerated between a geometry and latitude/longitude
 # columns given side by side, degrees (about 11 m at the equator): more than
 # rounding, less than a different place.
@@ -345,7 +354,8 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
         (float64, kWh/day), ``design_temp_min_c``, ``temp_mean_c`` (float64,
         degC, NaN = programme default), ``weather_file`` (str, "" = none),
         ``reliability_target`` (float64, largest unmet-energy fraction, NaN =
-        programme default); then every other input column unchanged; then
+        programme default), ``ghi_correction`` (float64, multiplier on the
+        embedded irradiance, NaN = programme default); then every other input column unchanged; then
         ``geometry`` (points, EPSG:4326).
 
     Raises
@@ -533,6 +543,19 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
         what="fraction",
     )
 
+    lo_ghi, hi_ghi = _GHI_CORRECTION_RANGE
+    ghi_correction = _float_column(
+        cells("ghi_correction"),
+        n_rows,
+        keep,
+        default=math.nan,
+        check=lambda x: None
+        if lo_ghi <= x <= hi_ghi
+        else f"must be a multiplier between {lo_ghi:g} and {hi_ghi:g} (e.g. 0.9 to lower the irradiance by 10 %)",
+        on_problem=lambda r, msg: problem(row_number(r), "ghi_correction", msg),
+        what="multiplier",
+    )
+
     # -- coordinates -----------------------------------------------------------
     latitude, longitude = _coordinates(
         geometry, cells("latitude"), cells("longitude"), keep, n_rows, label, problems
@@ -575,6 +598,7 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
     data["temp_mean_c"] = temperatures["temp_mean_c"][idx]
     data["weather_file"] = pd.array([text["weather_file"][r] for r in keep], dtype="str")
     data["reliability_target"] = reliability[idx]
+    data["ghi_correction"] = ghi_correction[idx]
     out = pd.DataFrame(data, index=pd.RangeIndex(len(keep)))
     if unknown:
         # Column by column, so that repeated names and dtypes survive as given.

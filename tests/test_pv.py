@@ -180,3 +180,130 @@ def test_specific_yield_at_greensboro_is_plausible(greensboro_weather):
     # is roughly 1300-1600 kWh/kWp per year; reanalysis irradiance (biased
     # high) may push it somewhat above.
     assert np.all((annual > 1250.0) & (annual < 1800.0))
+
+
+# --- fast sun position ------------------------------------------------------
+
+def test_almanac_sun_position_matches_spa_worked_example():
+    # source: Reda & Andreas 2004, NREL/TP-560-34302, Table A5.1 (as above);
+    # the almanac formulae claim 0.01° over 1950-2050 (Michalsky 1988,
+    # Solar Energy 40:227), so allow 0.02°.
+    times = pd.DatetimeIndex([pd.Timestamp("2003-10-17 12:30:30",
+                                           tz="Etc/GMT+7")]).tz_convert("UTC")
+    geometry = pv.solar_geometry(39.742476, -105.1786, times, 1830.14,
+                                 pressure_pa=82000.0, temperature_c=11.0,
+                                 method="almanac")
+    assert geometry["apparent_zenith"].iloc[0] == pytest.approx(50.11162,
+                                                                abs=0.02)
+    assert geometry["azimuth"].iloc[0] == pytest.approx(194.34024, abs=0.02)
+
+
+def _sun_vectors(elevation_deg, azimuth_deg):
+    e, a = np.radians(elevation_deg), np.radians(azimuth_deg)
+    return np.stack([np.cos(e) * np.sin(a), np.cos(e) * np.cos(a), np.sin(e)])
+
+
+@pytest.mark.parametrize("latitude, longitude, offset", [
+    (36.1, -79.95, -5.0),     # Greensboro NC (pvlib TMY3 site)
+    (-1.29, 36.82, 3.0),      # Nairobi
+    (64.8, -147.7, -9.0),     # Fairbanks AK: low sun, long days
+    (-33.9, 18.4, 2.0),       # Cape Town
+])
+def test_almanac_sun_position_agrees_with_spa_over_a_year(latitude,
+                                                          longitude, offset):
+    times = resource.local_hour_midpoints_utc(offset)
+    # source: pvlib's NREL SPA (reference library), every hour of a year
+    spa = pv.solar_geometry(latitude, longitude, times, 0.0, method="spa")
+    fast = pv.solar_geometry(latitude, longitude, times, 0.0,
+                             method="almanac")
+    separation = np.degrees(np.arccos(np.clip(
+        (_sun_vectors(spa["elevation"], spa["azimuth"])
+         * _sun_vectors(fast["elevation"], fast["azimuth"])).sum(axis=0),
+        -1.0, 1.0)))
+    # Stated tolerance of the fast path: 0.02° in direction and zenith
+    # (Michalsky 1988 claims 0.01°); an hour of sun motion is 15°.
+    assert separation.max() < 0.02
+    np.testing.assert_allclose(fast["zenith"], spa["zenith"], atol=0.02)
+    up = spa["apparent_elevation"] > 1.0
+    np.testing.assert_allclose(fast["apparent_zenith"][up],
+                               spa["apparent_zenith"][up], atol=0.02)
+    np.testing.assert_allclose(fast["dni_extra"], spa["dni_extra"],
+                               rtol=1e-12)
+
+
+def test_sun_year_clear_sky_is_the_same_with_fast_and_precise_sun():
+    # source: pvlib's NREL SPA (reference library) through the same chain
+    fast = resource.sun_year(36.1, -79.95, -5.0, 273.0, method="almanac")
+    precise = resource.sun_year(36.1, -79.95, -5.0, 273.0, method="spa")
+    daily_fast = fast.clearsky_ghi_wm2.reshape(365, 24).sum(axis=1)
+    daily_precise = precise.clearsky_ghi_wm2.reshape(365, 24).sum(axis=1)
+    np.testing.assert_allclose(daily_fast, daily_precise, rtol=2e-3)
+
+
+def test_relative_airmass_matches_pvlib():
+    zenith = np.array([0.0, 30.0, 60.0, 80.0, 89.5, 95.0])
+    # source: pvlib.atmosphere.get_relative_airmass, Kasten & Young 1989
+    expected = pvlib.atmosphere.get_relative_airmass(zenith)
+    np.testing.assert_allclose(pv.relative_airmass(zenith), expected,
+                               rtol=1e-12, equal_nan=True)
+
+
+def test_erbs_decomposition_matches_pvlib(greensboro_geometry):
+    geometry, clear = greensboro_geometry
+    rng = np.random.default_rng(5)
+    ghi = clear * rng.uniform(0.1, 1.1, size=clear.shape)
+    zenith = geometry["zenith"].to_numpy()
+    day = np.arange(8760) // 24 + 1
+    dni, dhi = pv.erbs_decomposition(ghi, zenith, day)
+    # source: pvlib.irradiance.erbs (reference library)
+    expected = pvlib.irradiance.erbs(ghi, zenith, day)
+    np.testing.assert_allclose(dni, expected["dni"], rtol=1e-9, atol=1e-9)
+    np.testing.assert_allclose(dhi, expected["dhi"], rtol=1e-9, atol=1e-9)
+
+
+def test_unknown_solar_position_method_is_rejected():
+    times = resource.local_hour_midpoints_utc(0.0)[:2]
+    with pytest.raises(ValueError, match="solar position method"):
+        pv.solar_geometry(0.0, 0.0, times, 0.0, method="guess")
+
+
+# --- separate DC losses -------------------------------------------------------
+
+def test_default_separate_losses_equal_the_pvwatts_total():
+    poa = np.array([200.0, 800.0])
+    temp = np.array([20.0, 50.0])
+    # source: Dobos 2014, PVWatts V5 manual: default total DC losses 14 %
+    np.testing.assert_allclose(pv.dc_power_per_kwp(poa, temp),
+                               pv.dc_power_per_kwp(poa, temp,
+                                                   losses_fraction=0.14),
+                               rtol=1e-12)
+    assert pv.combined_losses_fraction() == pytest.approx(0.14, abs=1e-12)
+
+
+def test_pvwatts_loss_breakdown_combines_multiplicatively():
+    # from memory: PVWatts V5 default losses are soiling 2, shading 3,
+    # snow 0, mismatch 2, wiring 2, connections 0.5, light-induced
+    # degradation 1.5, nameplate 1, age 0, availability 3 (%) (Dobos 2014,
+    # PVWatts V5 manual), combining to 14.08 %.
+    other = 1.0 - (0.97 * 0.98 * 0.995 * 0.985 * 0.99 * 0.97)
+    total = pv.combined_losses_fraction(0.02, 0.02, other)
+    assert total == pytest.approx(0.1408, abs=5e-5)
+
+
+def test_soiling_and_wiring_scale_the_output():
+    base = pv.dc_power_per_kwp(1000.0, 25.0, soiling_fraction=0.0,
+                               wiring_fraction=0.0, other_losses_fraction=0.0)
+    assert float(base) == pytest.approx(1000.0)
+    dusty = pv.dc_power_per_kwp(1000.0, 25.0, soiling_fraction=0.05,
+                                wiring_fraction=0.03,
+                                other_losses_fraction=0.0)
+    # source: PVWatts V5 manual, losses combine as a product of (1 - loss)
+    assert float(dusty) == pytest.approx(1000.0 * 0.95 * 0.97)
+
+
+def test_total_and_separate_losses_cannot_both_be_given():
+    with pytest.raises(ValueError, match="either losses_fraction"):
+        pv.dc_power_per_kwp(1000.0, 25.0, losses_fraction=0.1,
+                            soiling_fraction=0.02)
+    with pytest.raises(ValueError, match="soiling_fraction"):
+        pv.dc_power_per_kwp(1000.0, 25.0, soiling_fraction=1.5)

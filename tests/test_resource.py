@@ -337,7 +337,8 @@ def test_site_weather_shapes_units_and_orientation(greensboro_weather):
         assert array.shape == (3, 8760), name
         assert array.dtype == np.float32, name
         assert np.isfinite(array).all(), name
-    assert w.temp_air_c.shape == (8760,) and w.temp_air_c.dtype == np.float32
+    assert w.temp_air_c.shape == (3, 8760) and w.temp_air_c.dtype == np.float32
+    assert w.wind_speed_ms.shape == (3, 8760)
     assert w.daily_ghi_kwh_m2.shape == (3, 365)
     np.testing.assert_allclose(w.daily_ghi_kwh_m2,
                                w.ghi_wm2.reshape(3, 365, 24).sum(axis=2)
@@ -350,8 +351,7 @@ def test_site_weather_shapes_units_and_orientation(greensboro_weather):
     assert w.cell.latitude_deg == 36.0
     # Cells heat above ambient in sunshine and hardly at night.
     sunny = w.poa_wm2 > 600.0
-    assert np.all(w.cell_temp_c[sunny] > np.broadcast_to(
-        w.temp_air_c, w.cell_temp_c.shape)[sunny] + 10.0)
+    assert np.all(w.cell_temp_c[sunny] > w.temp_air_c[sunny] + 10.0)
 
 
 def test_site_weather_is_reproducible(greensboro_tmy):
@@ -371,3 +371,98 @@ def test_site_weather_southern_site_faces_north():
     assert w.utc_offset_hours == 2.0  # source: IANA tz Africa/Lusaka (CAT)
     ratio = w.poa_wm2.sum() / w.ghi_wm2.sum()
     assert 1.0 < ratio < 1.2  # common practice: modest gain at low latitude
+
+
+# --- own cell or a neighbour --------------------------------------------------
+
+def test_inland_site_uses_its_own_cell():
+    cell = resource.nearest_climate_cell(-1.29, 36.82)   # Nairobi
+    assert cell.is_own_cell
+    assert abs(cell.latitude_deg + 1.29) <= 1.5
+    assert abs(cell.longitude_deg - 36.82) <= 1.5
+
+
+def test_island_site_without_data_in_its_cell_is_flagged():
+    # Malé, Maldives (4.17 N, 73.51 E): its 3° cell is sea in the reanalysis
+    # land mask, so the nearest cell with data, on the Indian mainland or
+    # Sri Lanka side, is taken and flagged.
+    cell = resource.nearest_climate_cell(4.17, 73.51)
+    assert not cell.is_own_cell
+    assert (abs(cell.latitude_deg - 4.17) > 1.5
+            or abs(cell.longitude_deg - 73.51) > 1.5)
+    weather = resource.site_weather(4.17, 73.51, n_years=1, seed=1,
+                                    temp_mean_c=28.0)
+    assert "nearest cell with data" in weather.source
+    assert weather.cell.is_own_cell is False
+
+
+# --- clear sky on the fast path -----------------------------------------------
+
+@pytest.mark.filterwarnings("ignore:.*dayofyear is deprecated")
+@pytest.mark.parametrize("latitude, longitude", [
+    (36.1, -79.95), (-1.29, 36.82), (13.5, 2.1), (-33.9, 18.4)])
+def test_linke_turbidity_matches_pvlib_lookup(latitude, longitude):
+    times = resource.local_hour_midpoints_utc(0.0)[::24]
+    # source: pvlib.clearsky.lookup_linke_turbidity (reference library)
+    expected = pvlib.clearsky.lookup_linke_turbidity(times, latitude,
+                                                     longitude)
+    got = resource.linke_turbidity(latitude, longitude,
+                                   times.day_of_year.to_numpy())
+    np.testing.assert_allclose(got, expected.to_numpy(), rtol=1e-12)
+
+
+@pytest.mark.filterwarnings("ignore:.*dayofyear is deprecated")
+def test_clear_sky_matches_pvlib_location_clearsky():
+    times = resource.local_hour_midpoints_utc(-5.0)
+    geometry = pv.solar_geometry(36.1, -79.95, times, 273.0)
+    ours = resource.clear_sky_ghi(geometry, 36.1, -79.95, 273.0)
+    # source: pvlib.location.Location.get_clearsky (Ineichen, reference
+    # library) with the same solar position
+    location = pvlib.location.Location(36.1, -79.95, altitude=273.0)
+    expected = location.get_clearsky(times, model="ineichen",
+                                     solar_position=geometry)["ghi"]
+    np.testing.assert_allclose(ours, np.clip(expected.to_numpy(), 0, None),
+                               rtol=1e-9, atol=1e-9)
+
+
+# --- temperatures from monthly values -----------------------------------------
+
+def test_monthly_temperature_profile_keeps_each_months_mean_and_minimum():
+    # Greensboro TMY3 monthly mean air temperatures, computed from the file
+    tmy, _ = pvlib.iotools.read_tmy3(TMY3_GREENSBORO, map_variables=True)
+    # source: pvlib bundled TMY3 723170TYA (measured)
+    month = (tmy.index - pd.Timedelta(hours=1)).month.to_numpy() - 1
+    mean = np.bincount(month, weights=tmy["temp_air"].to_numpy()) / np.bincount(month)
+    minimum = mean - 6.0
+    profile = resource.monthly_air_temperature_profile(mean, minimum)
+    by_day = profile.reshape(365, 24)
+    got_mean = np.bincount(resource.MONTH_OF_DAY, weights=by_day.mean(axis=1)) / resource.DAYS_PER_MONTH
+    np.testing.assert_allclose(got_mean, mean, atol=1e-9)
+    np.testing.assert_allclose(by_day.min(axis=1), minimum[resource.MONTH_OF_DAY], atol=0.1)
+
+
+def test_weather_source_without_temperature_needs_a_mean():
+    with pytest.raises(ValueError, match="temp_mean_c"):
+        resource.site_weather_from(resource.EMBEDDED, 36.1, -79.95, n_years=1,
+                                   seed=1)
+
+
+def test_orientation_can_be_given():
+    w = resource.site_weather_from(resource.EMBEDDED, 36.1, -79.95, n_years=1,
+                                   seed=1, temp_mean_c=15.0, tilt_deg=20.0,
+                                   azimuth_deg=200.0)
+    assert (w.tilt_deg, w.azimuth_deg) == (20.0, 200.0)
+    with pytest.raises(ValueError, match="tilt_deg"):
+        resource.site_weather_from(resource.EMBEDDED, 36.1, -79.95,
+                                   n_years=1, seed=1, temp_mean_c=15.0,
+                                   tilt_deg=95.0)
+
+
+def test_embedded_source_is_described_with_cell_and_distance(greensboro_weather):
+    w = greensboro_weather
+    # source: great-circle distance (36.1 N, 79.95 W) to the cell centre
+    # (36 N, 81 W), haversine on a 6371 km sphere: about 95 km
+    assert w.source == "embedded MERRA-2 3° cell at (36.0, -81.0), 95 km"
+    assert w.source_kind == "embedded"
+    assert w.data_distance_km == pytest.approx(95.0, abs=1.0)
+    assert not w.temperature_from_data
