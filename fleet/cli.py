@@ -22,7 +22,11 @@ inputs
                  Multi-Tier Framework tier; missing tiers count as 0). Optional: site_name,
                  district, depot, health_posts, schools, productive_kwh_day (kWh/day),
                  temp_mean_c and design_temp_min_c (degC), reliability_target (largest unmet
-                 energy fraction, 0..1). Other columns are carried through to the outputs.
+                 energy fraction, 0..1), street_lights (count), pumping_kwh_day (kWh/day,
+                 deferrable), ghi_correction (multiplier on the embedded irradiance, 0.3..1.5),
+                 weather_file (an EPW, TMY3 or TMY2 file, relative to the site table's folder,
+                 used instead of the embedded resource). Other columns are carried through.
+  --tier-profiles survey hourly profiles per tier (csv/xlsx; see README).
   --components   component library: a folder of CSV files or an .xlsx with one sheet per kind
                  (pv_modules, batteries, charge_controllers, inverters, balance_of_system,
                  installation). Default: the bundled demo library (invented prices).
@@ -86,12 +90,19 @@ def cmd_plan(args: argparse.Namespace) -> int:
             loaded[name] = fn(arg)
         except InputError as exc:
             problems += exc.problems
+    from .weather_files import read_site_weather_sources
+    if "sites" in loaded:
+        try:
+            loaded["weather_sources"] = read_site_weather_sources(loaded["sites"], Path(args.sites).parent,
+                                                                  label=str(args.sites))
+        except InputError as exc:
+            problems += exc.problems
     if problems:
         raise InputError(problems)
     progress.stage(f"read {len(loaded['sites'])} sites from {args.sites}")
     loaded["sites"].attrs["source"] = str(args.sites)
     result = run_plan(loaded["sites"], loaded["components"], loaded["config"], tracker=progress,
-                      tier_profiles=loaded.get("profiles"))
+                      tier_profiles=loaded.get("profiles"), weather_sources=loaded.get("weather_sources"))
     progress.stage("writing outputs")
     from .components import default_library_path
     from .config import default_config_path
@@ -208,6 +219,8 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--csv", metavar="FILE", help="also write the table as CSV")
     d.add_argument("--plot", metavar="FILE", help="also write a PNG of the mean day of each tier and facility")
     d.set_defaults(func=cmd_demand)
+    from .cli_resource import add_parser as add_resource_parser
+    add_resource_parser(sub)
     return parser
 
 

@@ -46,7 +46,11 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("resource", "correction_factor"): (float, 0.3, 1.5, "multiplier on GHI"),
     ("resource", "persistence"): (float, 0.0, 0.95, "lag-1 autocorrelation"),
     ("resource", "max_distance_km"): (float, 0.0, 2000.0, "km"),
-    ("pv", "losses_fraction"): (float, 0.0, 0.5, "fraction"),
+    ("pv", "soiling_fraction"): (float, 0.0, 0.5, "fraction"),
+    ("pv", "wiring_fraction"): (float, 0.0, 0.5, "fraction"),
+    ("pv", "other_losses_fraction"): (float, 0.0, 0.5, "fraction"),
+    ("pv", "tilt_deg"): (float, 0.0, 90.0, "degrees"),
+    ("pv", "azimuth_deg"): (float, 0.0, 360.0, "degrees from north"),
     ("pv", "albedo"): (float, 0.0, 1.0, "fraction"),
     ("demand", "household_day_to_day_sd"): (float, 0.0, 1.0, "relative"),
     ("demand", "common_day_to_day_sd"): (float, 0.0, 1.0, "relative"),
@@ -61,6 +65,8 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
 }
 
 ALLOWED_VOLTAGES_V = (12, 24, 48)
+#: keys that may be absent (absent tilt/azimuth: tilt = |latitude|, at least 10 deg, facing the equator)
+OPTIONAL_KEYS = {("pv", "tilt_deg"), ("pv", "azimuth_deg")}
 
 
 def _numbers(v, lo, hi):
@@ -148,7 +154,7 @@ def validate_config(raw: dict[str, Any], label: str) -> ProgramConfig:
     solver = out.get("catalogue", {}).get("solver")
     if solver is not None and solver not in ("cbc", "highs"):
         problems.append(Problem(label, None, "catalogue.solver", f"'{solver}' is not one of cbc, highs"))
-    missing = [f"{s}.{k}" for (s, k) in SCHEMA if k not in out.get(s, {})]
+    missing = [f"{s}.{k}" for (s, k) in SCHEMA if k not in out.get(s, {}) and (s, k) not in OPTIONAL_KEYS]
     if missing and not problems:
         problems.append(Problem(label, None, None, "missing keys: " + ", ".join(missing)))
     if problems:

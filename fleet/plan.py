@@ -23,16 +23,14 @@ from .demand import HOURS_PER_YEAR, service_units, settings_from_config, unit_lo
 from .errors import InputError, Problem
 from .iv import tables_for_kits
 from .kits import DesignConditions, candidate_kits, kernel_parameters
-from .resource import site_weather, utc_offset_hours
+from .pv import combined_losses_fraction
+from .resource import EMBEDDED, site_weather_from, utc_offset_hours
 
 #: Kits whose array would give more than this many times the unit's yearly
 #: demand are not offered to it (wasteful; keeps the search small).
 OVERSIZE_LIMIT = 6.0
 #: Block counts tried per minigrid site and block type, as multiples of the
 #: count whose yearly array yield equals the yearly demand.
-#: A site further than this from its resource cell's centre is not in a cell
-#: with data (half the diagonal of a 3-degree cell is about 235 km).
-FAR_CELL_KM = 240.0
 BLOCK_COUNT_FACTORS = (0.9, 1.1, 1.3, 1.55, 1.85, 2.2)
 
 
@@ -75,16 +73,24 @@ class PlanResult:
     traces: dict[str, dict] = field(default_factory=dict)
 
 
+def array_losses(cfg: ProgramConfig) -> float:
+    """Combined soiling, wiring and other array losses (fraction of DC power)."""
+    p = cfg["pv"]
+    return float(combined_losses_fraction(p["soiling_fraction"], p["wiring_fraction"], p["other_losses_fraction"]))
+
+
 def site_seed(seed: int, site_id: str) -> int:
     """A per-site seed that does not change when other sites are added or removed."""
     return (int(seed) * 1_000_003 + zlib.crc32(str(site_id).encode())) % (2**32)
 
 
-def build_weather(sites, cfg: ProgramConfig, tracker=None) -> Weather:
-    """Synthetic weather years for every site (raises InputError for sites off the data)."""
+def build_weather(sites, cfg: ProgramConfig, tracker=None, weather_sources=None) -> Weather:
+    """Weather years for every site: its own weather data where given, else the embedded grid
+    (raises InputError for sites off the data)."""
     tracker = tracker or _Quiet()
+    weather_sources = weather_sources or {}
     n_years = cfg["program"]["weather_years"]
-    t = cfg["temperature"]
+    t, r, pvc = cfg["temperature"], cfg["resource"], cfg["pv"]
     poa = np.zeros((len(sites), n_years, HOURS_PER_YEAR), np.float32)
     tc = np.zeros_like(poa)
     rows, problems = [], []
@@ -92,23 +98,35 @@ def build_weather(sites, cfg: ProgramConfig, tracker=None) -> Weather:
     for i, s in tracker.wrap(enumerate(sites.itertuples(index=False)), len(sites), "weather years"):
         mean_default = not np.isfinite(s.temp_mean_c)
         temp_mean = t["default_mean_c"] if mean_default else float(s.temp_mean_c)
+        correction = float(s.ghi_correction) if np.isfinite(s.ghi_correction) else r["correction_factor"]
+        source = weather_sources.get(str(s.site_id), EMBEDDED)
         try:
-            w = site_weather(s.latitude, s.longitude, n_years=n_years, seed=site_seed(cfg["program"]["seed"], s.site_id),
-                             temp_mean_c=temp_mean, temp_daily_amplitude_k=t["daily_amplitude_k"],
-                             correction_factor=cfg["resource"]["correction_factor"],
-                             persistence=cfg["resource"]["persistence"], albedo=cfg["pv"]["albedo"],
-                             max_distance_km=cfg["resource"]["max_distance_km"])
+            w = site_weather_from(source, s.latitude, s.longitude, n_years=n_years,
+                                  seed=site_seed(cfg["program"]["seed"], s.site_id),
+                                  temp_mean_c=temp_mean, temp_daily_amplitude_k=t["daily_amplitude_k"],
+                                  correction_factor=correction, persistence=r["persistence"],
+                                  albedo=pvc["albedo"], max_distance_km=r["max_distance_km"],
+                                  tilt_deg=pvc.get("tilt_deg"), azimuth_deg=pvc.get("azimuth_deg"))
         except ValueError as exc:
             problems.append(Problem(label, i + 2, "latitude", f"site {s.site_id}: {exc}"))
             continue
         poa[i] = w.poa_wm2
         tc[i] = w.cell_temp_c
         annual_poa = w.poa_wm2.sum(axis=1) / 1000.0
+        cell = w.cell
         rows.append({
-            "site_id": s.site_id, "climate_cell_lat": w.cell.latitude_deg, "climate_cell_lon": w.cell.longitude_deg,
-            "climate_cell_distance_km": w.cell.distance_km, "utc_offset_h": w.utc_offset_hours,
+            "site_id": s.site_id, "weather_source": w.source, "weather_source_kind": w.source_kind,
+            "weather_data_distance_km": w.data_distance_km,
+            "climate_cell_lat": cell.latitude_deg if cell else np.nan,
+            "climate_cell_lon": cell.longitude_deg if cell else np.nan,
+            "climate_cell_distance_km": cell.distance_km if cell else np.nan,
+            "climate_cell_is_own": bool(cell.is_own_cell) if cell else True,
+            "ghi_correction_used": correction if w.source_kind == "embedded" else 1.0,
+            "utc_offset_h": w.utc_offset_hours,
             "tilt_deg": w.tilt_deg, "azimuth_deg": w.azimuth_deg, "elevation_m": w.elevation_m,
-            "temp_mean_c_used": temp_mean, "temp_mean_default": mean_default,
+            "temp_mean_c_used": np.nan if w.temperature_from_data else temp_mean,
+            "temp_mean_default": mean_default and not w.temperature_from_data,
+            "temp_air_min_c": float(w.temp_air_c.min()),
             "design_temp_min_default": not np.isfinite(s.design_temp_min_c),
             "ghi_kwh_m2_day": float(w.daily_ghi_kwh_m2.mean()),
             "poa_kwh_m2_year_mean": float(annual_poa.mean()), "poa_kwh_m2_year_min": float(annual_poa.min()),
@@ -141,7 +159,7 @@ def _design_quantile(values: np.ndarray, q: float, worse: str = "high") -> np.nd
 
 def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Which (unit, kit[, block count]) options to simulate, and which were screened out and why."""
-    loss = cfg["pv"]["losses_fraction"]
+    loss = array_losses(cfg)
     yield_kwh_per_wp = weather.poa_wm2.sum(axis=2).max(axis=1) / 1000.0 / 1000.0 * (1 - loss)  # best year, kWh/Wp
     mean_yield = weather.poa_wm2.sum(axis=2).mean(axis=1) / 1000.0 / 1000.0 * (1 - loss)
     target = cfg["program"]["reliability_target"]
@@ -363,11 +381,13 @@ def compare(ev, options, units, catalogues, cfg) -> pd.DataFrame:
 
 
 def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
-             tier_profiles: dict | None = None) -> PlanResult:
+             tier_profiles: dict | None = None, weather_sources: dict | None = None) -> PlanResult:
     """Plan a program end to end; see the module docstring.
 
     ``tier_profiles`` (from :func:`fleet.profiles.read_tier_profiles`) replaces
-    the built-in hourly profiles of the tiers it names.
+    the built-in hourly profiles of the tiers it names; ``weather_sources``
+    (site_id -> measured year or monthly climate, from
+    :mod:`fleet.weather_files`) replaces the embedded resource at those sites.
     """
     tracker = tracker or _Quiet()
     timings: dict[str, float] = {}
@@ -385,20 +405,27 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     t = time.perf_counter()
     tracker.stage("weather")
-    weather = build_weather(sites, cfg, tracker)
+    weather = build_weather(sites, cfg, tracker, weather_sources)
     timings["weather"] = time.perf_counter() - t
     n_default = int(weather.info.temp_mean_default.sum())
     if n_default:
         ids = ", ".join(weather.info.site_id[weather.info.temp_mean_default].head(10))
         warnings.append(f"{n_default} site(s) have no temp_mean_c; the program default "
                         f"{cfg['temperature']['default_mean_c']} degC was used ({ids}{', ...' if n_default > 10 else ''}).")
-    far = weather.info[weather.info.climate_cell_distance_km > FAR_CELL_KM]
-    for r in far.itertuples(index=False):
-        warnings.append(f"site {r.site_id}: nearest solar resource cell is {r.climate_cell_distance_km:.0f} km away.")
+    for r in weather.info[~weather.info.climate_cell_is_own].itertuples(index=False):
+        warnings.append(f"site {r.site_id}: its own resource grid cell has no data; the nearest cell with data, "
+                        f"{r.climate_cell_distance_km:.0f} km away, was used.")
+    measured = weather.info[(weather.info.weather_source_kind == "measured") & (weather.info.weather_data_distance_km > 50)]
+    for r in measured.itertuples(index=False):
+        warnings.append(f"site {r.site_id}: its weather file's station is {r.weather_data_distance_km:.0f} km away.")
 
     t = time.perf_counter()
     tracker.stage("kits")
-    mins = sites["design_temp_min_c"].to_numpy(dtype=float)
+    mins = sites["design_temp_min_c"].to_numpy(dtype=float).copy()
+    # a measured year's coldest hour stands in where the site gives no design minimum
+    from_data = weather.info.temp_air_min_c.to_numpy(dtype=float)
+    measured_site = (weather.info.weather_source_kind == "measured").to_numpy()
+    mins = np.where(~np.isfinite(mins) & measured_site, from_data, mins)
     cold = float(np.nanmin(mins)) if np.isfinite(mins).any() else cfg["temperature"]["default_min_c"]
     if not np.isfinite(mins).all():
         cold = min(cold, cfg["temperature"]["default_min_c"])
@@ -407,7 +434,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
     tables = tables_for_kits(kits, library)
     params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
-                               pv_losses_fraction=cfg["pv"]["losses_fraction"])
+                               pv_losses_fraction=array_losses(cfg))
     pairs, screened = build_pairs(units, design, kits, weather, sites, cfg)
     timings["kits"] = time.perf_counter() - t
 

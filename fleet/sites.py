@@ -29,6 +29,7 @@ Optional columns (default in brackets)
 
 ``site_name`` (empty text), ``district`` ("(none)"), ``depot`` ("(none)"),
 ``health_posts`` (0), ``schools`` (0), ``productive_kwh_day`` (0.0, kWh/day),
+``street_lights`` (0), ``pumping_kwh_day`` (0.0, kWh/day, a deferrable load),
 ``design_temp_min_c`` and ``temp_mean_c`` (NaN, degC: use the programme
 default), ``weather_file`` (empty text: no user weather data),
 ``reliability_target`` (NaN: use the programme's; a fraction in (0, 1), the
@@ -85,6 +86,8 @@ OPTIONAL_COLUMNS: dict[str, object] = {
     "health_posts": 0,
     "schools": 0,
     "productive_kwh_day": 0.0,
+    "street_lights": 0,
+    "pumping_kwh_day": 0.0,
     "design_temp_min_c": math.nan,
     "temp_mean_c": math.nan,
     "weather_file": "",
@@ -105,6 +108,8 @@ CONTRACT_COLUMNS: tuple[str, ...] = (
     "health_posts",
     "schools",
     "productive_kwh_day",
+    "street_lights",
+    "pumping_kwh_day",
     "design_temp_min_c",
     "temp_mean_c",
     "weather_file",
@@ -116,7 +121,7 @@ CONTRACT_COLUMNS: tuple[str, ...] = (
 SCHEMES: tuple[str, ...] = ("shs", "minigrid")
 
 _TEXT_COLUMNS = ("site_id", "site_name", "district", "depot", "scheme", "weather_file")
-_COUNT_COLUMNS = (*TIER_COLUMNS, "health_posts", "schools")
+_COUNT_COLUMNS = (*TIER_COLUMNS, "health_posts", "schools", "street_lights")
 _TEMPERATURE_COLUMNS = ("design_temp_min_c", "temp_mean_c")
 # Plausible air temperatures at a populated site, degC. Outside this range a
 # value is far more likely a unit or typing slip (e.g. kelvin) than real.
@@ -509,6 +514,19 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
         on_problem=productive_problem,
         what="kWh/day",
     )
+    def pumping_problem(r: int, message: str) -> None:
+        bad_load_rows.add(r)
+        problem(row_number(r), "pumping_kwh_day", message)
+
+    pumping = _float_column(
+        cells("pumping_kwh_day"),
+        n_rows,
+        keep,
+        default=0.0,
+        check=lambda x: None if x >= 0 else "must be 0 or more kWh/day",
+        on_problem=pumping_problem,
+        what="kWh/day",
+    )
     lo, hi = _TEMPERATURE_RANGE_C
     temperatures = {}
     for name in _TEMPERATURE_COLUMNS:
@@ -566,8 +584,8 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
         if r in bad_load_rows:
             continue
         households = sum(int(counts[c][r]) for c in TIER_COLUMNS)
-        community = int(counts["health_posts"][r]) + int(counts["schools"][r])
-        if households == 0 and community == 0 and productive[r] == 0:
+        community = int(counts["health_posts"][r]) + int(counts["schools"][r]) + int(counts["street_lights"][r])
+        if households == 0 and community == 0 and productive[r] == 0 and pumping[r] == 0:
             problem(
                 row_number(r),
                 None,
@@ -594,6 +612,8 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
     data["health_posts"] = counts["health_posts"][idx]
     data["schools"] = counts["schools"][idx]
     data["productive_kwh_day"] = productive[idx]
+    data["street_lights"] = counts["street_lights"][idx]
+    data["pumping_kwh_day"] = pumping[idx]
     data["design_temp_min_c"] = temperatures["design_temp_min_c"][idx]
     data["temp_mean_c"] = temperatures["temp_mean_c"][idx]
     data["weather_file"] = pd.array([text["weather_file"][r] for r in keep], dtype="str")

@@ -140,6 +140,14 @@ def make_sites(seed: int = SEED) -> pd.DataFrame:
     blank = rng.choice(len(sites), size=N_BLANK_TEMPERATURES, replace=False)
     sites.loc[blank, "temp_mean_c"] = np.nan
     sites.loc[blank[:N_BLANK_DESIGN_MINIMUM], "design_temp_min_c"] = np.nan
+    # Street lights at minigrid villages and water pumping (a deferrable load) at some
+    # sites, drawn from a second stream so the columns above stay as they were.
+    extra = np.random.default_rng(20261202)
+    mg = sites.scheme == "minigrid"
+    sites.insert(sites.columns.get_loc("productive_kwh_day") + 1, "street_lights",
+                 np.where(mg, extra.integers(0, 13, len(sites)), 0))
+    sites.insert(sites.columns.get_loc("street_lights") + 1, "pumping_kwh_day",
+                 np.where(extra.random(len(sites)) < 0.15, np.round(extra.uniform(1.0, 8.0, len(sites)), 1), 0.0))
     return sites
 
 
