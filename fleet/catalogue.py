@@ -113,7 +113,8 @@ def optimise_catalogue(options: pd.DataFrame, all_units: list[str], *, max_types
     opts = options if allowed_kits is None else options[options.kit_id.isin(allowed_kits)]
     servable = sorted(set(opts.unit_id))
     if opts.empty:
-        return CatalogueResult([], pd.Series("", index=all_units), "no feasible option", 0.0, 0.0, 0.0,
+        return CatalogueResult([], pd.Series("", index=pd.Index(all_units, name="unit_id"), dtype=object),
+                               "no feasible option" if all_units else "no units", 0.0, 0.0, 0.0,
                                0, len(all_units), 0.0, solver, list(all_units))
     merged, case_of = merge_identical_units(opts)
     kits = sorted(set(merged.kit_id))

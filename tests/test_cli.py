@@ -184,3 +184,40 @@ def test_demand_command_summarises_each_site(tmp_path):
     assert (table["design-year demand (kWh/day)"] >= table["first-year demand (kWh/day)"] * (1 - 1e-6)).all()
     assert ((table["load factor (mean/peak)"] > 0) & (table["load factor (mean/peak)"] <= 1)).all()
     assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_a_sites_weather_file_replaces_the_embedded_resource(tmp_path):
+    # source: pvlib's bundled measured TMY3 file for Greensboro, NC (723170TYA.CSV); with one weather
+    # year the plan's year is the measured year itself, so the site's mean daily GHI is the file's
+    import shutil
+
+    import pvlib
+    src = Path(pvlib.__file__).parent / "data" / "723170TYA.CSV"
+    shutil.copy(src, tmp_path / "station.csv")
+    data, meta = pvlib.iotools.read_tmy3(src, map_variables=True)
+    ghi = data["ghi"].to_numpy()[: 365 * 24]
+    (tmp_path / "sites.csv").write_text(
+        "site_id,latitude,longitude,scheme,households_t1,households_t2,weather_file\n"
+        f"GB-1,{meta['latitude']},{meta['longitude']},shs,4,2,station.csv\n")
+    (tmp_path / "p.toml").write_text("[program]\nweather_years = 1\n")
+    res = run_fleet("plan", tmp_path / "sites.csv", "--config", tmp_path / "p.toml", "--out", tmp_path / "run", "--quiet")
+    assert res.returncode == 0, res.stderr
+    sites = pd.read_excel(tmp_path / "run" / "deployment_summary.xlsx", sheet_name="sites")
+    assert sites["GHI (kWh/m2/day)"].iloc[0] == pytest.approx(ghi.sum() / 1000 / 365, rel=0.01)
+
+
+def test_a_missing_weather_file_is_reported_by_row(tmp_path):
+    (tmp_path / "sites.csv").write_text(
+        "site_id,latitude,longitude,scheme,households_t1,weather_file\nA,1,30,shs,4,nowhere.epw\n")
+    res = run_fleet("plan", tmp_path / "sites.csv", "--out", tmp_path / "run")
+    assert res.returncode == 2
+    assert "Traceback" not in res.stderr and "nowhere.epw" in res.stderr
+
+
+def test_resource_command_reports_a_point():
+    res = run_fleet("resource", "13.5", "2.1", "--years", "2", "--json")
+    assert res.returncode == 0, res.stderr
+    out = json.loads(res.stdout)
+    assert len(json.dumps(out)) > 100
+    off = run_fleet("resource", "0", "-150")
+    assert off.returncode == 2 and "Traceback" not in off.stderr
