@@ -127,9 +127,27 @@ FACILITY_APPLIANCES: dict[str, list[dict]] = {
     ],
 }
 
-#: Shape of productive daytime use (mills, workshops): share of the daily energy by hour.
+#: Shape of productive daytime use (workshops): share of the daily energy by hour.
 PRODUCTIVE_SHAPE = _hours((8, 12), (13.5, 17.5))
 PRODUCTIVE_SHAPE = PRODUCTIVE_SHAPE / PRODUCTIVE_SHAPE.sum()
+
+
+def _shape(*spans, base=0.0):
+    d = _hours(*spans) + base
+    return d / d.sum()
+
+
+#: Productive uses by kind: hourly share of the daily energy, the days it runs
+#: (weekdays only, or Monday-Saturday, or every day) and the ratio of the
+#: instantaneous peak to the busiest hour's mean power (motor starting,
+#: welding arcs). Shapes and ratios are our own assumptions (common practice
+#: for village enterprises).
+PRODUCTIVE_KINDS = {
+    "workshop": {"shape": PRODUCTIVE_SHAPE, "days": "weekdays", "peak_ratio": 2.0},
+    "mill": {"shape": _shape((9, 12), (15, 17)), "days": "mon-sat", "peak_ratio": 3.0},
+    "welding": {"shape": _shape((9, 12), (14, 16)), "days": "weekdays", "peak_ratio": 4.0},
+    "cold_storage": {"shape": _shape((10, 17), base=0.6), "days": "all", "peak_ratio": 1.5},
+}
 
 
 def daily_profile_w(appliances: list[dict]) -> np.ndarray:
@@ -346,7 +364,8 @@ class UnitDemand:
 
 
 def member_year_w(group: str, light_duty: np.ndarray, settings: DemandSettings,
-                  productive_kwh_day: float = 0.0, night_duty: np.ndarray | None = None) -> tuple[np.ndarray, float]:
+                  productive_kwh_day: float = 0.0, night_duty: np.ndarray | None = None,
+                  productive_kind: str = "workshop") -> tuple[np.ndarray, float]:
     """(365, 24) mean power (W) and design peak (W) of one member of a group
     before day-to-day variation and growth."""
     weekdays = weekday_mask()
@@ -367,8 +386,11 @@ def member_year_w(group: str, light_duty: np.ndarray, settings: DemandSettings,
             year = year * (weekdays & term)[:, None]
         return year, peak_power_w(apps)
     if group == "productive":
-        year = np.tile(PRODUCTIVE_SHAPE * productive_kwh_day * 1000.0, (DAYS_PER_YEAR, 1)) * weekdays[:, None]
-        return year, 2.0 * productive_kwh_day * 1000.0 * PRODUCTIVE_SHAPE.max()
+        kind = PRODUCTIVE_KINDS[productive_kind]
+        days = {"weekdays": weekdays, "mon-sat": ((np.arange(DAYS_PER_YEAR) + 2) % 7) < 6,
+                "all": np.ones(DAYS_PER_YEAR, bool)}[kind["days"]]
+        hourly = kind["shape"] * productive_kwh_day * 1000.0
+        return np.tile(hourly, (DAYS_PER_YEAR, 1)) * days[:, None], kind["peak_ratio"] * float(hourly.max())
     if group == "street_light":
         if night_duty is None:
             raise ValueError("street lights need the night duty (dusk to dawn)")
@@ -465,6 +487,7 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
         site = sites.iloc[u.site_index]
         ld, nd = sun(u.site_index)
         kwh = float(site["productive_kwh_day"])
+        pkind = str(site.get("productive_kind", "") or "workshop")
         if u.group == "village":
             n_hh = sum(int(site[f"households_t{t}"]) for t in range(1, 6))
             f = (day_to_day_factors(DAYS_PER_YEAR, settings.common_sd, rng)
@@ -489,7 +512,7 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
                 members.append(("street_light", int(site["street_lights"])))
             for group, n in members:
                 if n:
-                    y, pk = member_year_w(group, ld, settings, kwh, nd)
+                    y, pk = member_year_w(group, ld, settings, kwh, nd, pkind)
                     year += n * com_growth * y
                     year0 += n * y
                     cy = critical_year_w(group, ld)
@@ -510,7 +533,7 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
             deferrable[i] = float(site["pumping_kwh_day"]) * 1000.0 * g
             peaks[i] = deferrable[i] / PUMP_HOURS_PER_DAY
             continue
-        y, pk = member_year_w(u.group, ld, settings, kwh, nd)
+        y, pk = member_year_w(u.group, ld, settings, kwh, nd, pkind)
         cy = critical_year_w(u.group, ld)
         crit[i] = cy.reshape(-1) * g
         loads[i] = (f[:, None] * (y - cy) + cy).reshape(-1) * g

@@ -86,6 +86,7 @@ OPTIONAL_COLUMNS: dict[str, object] = {
     "health_posts": 0,
     "schools": 0,
     "productive_kwh_day": 0.0,
+    "productive_kind": "workshop",
     "street_lights": 0,
     "pumping_kwh_day": 0.0,
     "design_temp_min_c": math.nan,
@@ -108,6 +109,7 @@ CONTRACT_COLUMNS: tuple[str, ...] = (
     "health_posts",
     "schools",
     "productive_kwh_day",
+    "productive_kind",
     "street_lights",
     "pumping_kwh_day",
     "design_temp_min_c",
@@ -120,7 +122,8 @@ CONTRACT_COLUMNS: tuple[str, ...] = (
 #: Accepted values of ``scheme``.
 SCHEMES: tuple[str, ...] = ("shs", "minigrid")
 
-_TEXT_COLUMNS = ("site_id", "site_name", "district", "depot", "scheme", "weather_file")
+_TEXT_COLUMNS = ("site_id", "site_name", "district", "depot", "scheme", "weather_file", "productive_kind")
+PRODUCTIVE_KINDS = ("workshop", "mill", "welding", "cold_storage")
 _COUNT_COLUMNS = (*TIER_COLUMNS, "health_posts", "schools", "street_lights")
 _TEMPERATURE_COLUMNS = ("design_temp_min_c", "temp_mean_c")
 # Plausible air temperatures at a populated site, degC. Outside this range a
@@ -462,8 +465,13 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
 
     text = {
         name: _text_values(cells(name), n_rows, OPTIONAL_COLUMNS[name])
-        for name in ("site_name", "district", "depot", "weather_file")
+        for name in ("site_name", "district", "depot", "weather_file", "productive_kind")
     }
+    text["productive_kind"] = [v.strip().lower() or "workshop" for v in text["productive_kind"]]
+    for r in keep:
+        if text["productive_kind"][r] not in PRODUCTIVE_KINDS:
+            problem(row_number(r), "productive_kind",
+                    f"'{text['productive_kind'][r]}' is not one of {', '.join(PRODUCTIVE_KINDS)}")
 
     scheme_raw = _text_values(cells("scheme"), n_rows, "")
     scheme = [v.lower() for v in scheme_raw]
@@ -612,6 +620,7 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
     data["health_posts"] = counts["health_posts"][idx]
     data["schools"] = counts["schools"][idx]
     data["productive_kwh_day"] = productive[idx]
+    data["productive_kind"] = pd.array([text["productive_kind"][r] for r in keep], dtype="str")
     data["street_lights"] = counts["street_lights"][idx]
     data["pumping_kwh_day"] = pumping[idx]
     data["design_temp_min_c"] = temperatures["design_temp_min_c"][idx]

@@ -148,6 +148,9 @@ def make_sites(seed: int = SEED) -> pd.DataFrame:
                  np.where(mg, extra.integers(0, 13, len(sites)), 0))
     sites.insert(sites.columns.get_loc("street_lights") + 1, "pumping_kwh_day",
                  np.where(extra.random(len(sites)) < 0.15, np.round(extra.uniform(1.0, 8.0, len(sites)), 1), 0.0))
+    kinds = np.array(["workshop", "mill", "welding", "cold_storage"])
+    sites.insert(sites.columns.get_loc("productive_kwh_day") + 1, "productive_kind",
+                 np.where(sites.productive_kwh_day > 0, kinds[extra.integers(0, 4, len(sites))], ""))
     return sites
 
 

@@ -160,3 +160,16 @@ def test_schools_are_off_in_closed_months():
     month = demand.MONTH_OF_DAY + 1
     assert by_day[(month == 4) | (month == 8)].max() == 0
     assert by_day[month == 5].max() > 0
+
+
+@pytest.mark.parametrize("kind", sorted(demand.PRODUCTIVE_KINDS))
+def test_each_productive_kind_delivers_its_stated_daily_energy(kind):
+    year, peak = demand.member_year_w("productive", np.zeros((365, 24)), demand.DemandSettings(), 12.0,
+                                      productive_kind=kind)
+    active = year.sum(axis=1) > 0
+    assert year.sum(axis=1)[active] == pytest.approx(12_000.0)
+    assert peak >= year.max()
+    if kind == "cold_storage":
+        assert active.all() and (year > 0).all()  # refrigeration runs around the clock
+    else:
+        assert year[:, :6].sum() == 0  # workshops, mills and welders are idle before dawn
