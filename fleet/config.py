@@ -27,6 +27,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("program", "discount_rate"): (float, 0.0, 0.5, "per year"),
     ("program", "design_year"): (int, 0, 50, "years after connection"),
     ("program", "critical_reliability_target"): (float, 0.0, 1.0, "fraction of critical demand unmet"),
+    ("program", "deferrable_reliability_target"): (float, 0.0, 1.0, "fraction of deferrable demand unmet"),
     ("program", "service_target"): (str, None, None, "unmet, tier or both"),
     ("program", "tier_days_share"): (float, 0.0, 1.0, "share of days"),
     ("catalogue", "max_kit_types_shs"): (int, 1, 50, "kit types"),

@@ -19,9 +19,9 @@ combinations at once. One hour, in order:
    acceptance near full (absorption/float); the rest is spilled (the
    controller regulates the array off its maximum power point).
 4. A deferrable load (water pumping: a daily energy need, any hour) runs on
-   what is left of the array surplus after charging, and from the battery
-   while its state of charge is above ``DEFER_MIN_SOC``; what the day leaves
-   undone is reported.
+   the array surplus, ahead of charging only while the battery's state of
+   charge is at least ``DEFER_MIN_SOC``, and from the battery while it is
+   above that level; what the day leaves undone is reported.
 5. The battery covers the deficit within its discharge C-rate: critical load
    and self-consumption down to the low-voltage disconnect, the general load
    down to a higher shedding level (disconnect + the unit's separation, zero
@@ -55,8 +55,9 @@ HOURS = 8760
 WARMUP_HOURS = 720  # the year's last 30 days run first to set the starting state of charge
 EVENING_START, EVENING_END = 18, 22  # local clock hours counted as evening service (4 h)
 
-#: The battery may run a deferrable load (pump) only above this state of charge.
-DEFER_MIN_SOC = 0.85
+#: A deferrable load (pump) may take array power ahead of charging, and battery
+#: energy, only above this state of charge.
+DEFER_MIN_SOC = 0.7
 
 #: Names of the per (pair, year) metrics, in the kernel's output order.
 METRICS = (
@@ -121,6 +122,15 @@ def _step(g, tc, gen_w, crit_w, defer_left, pump_w, sep, p, op_t, mp_t, grid, e,
     surplus = pv - direct
     deficit = demand_bus - direct
     soc = e / enom
+    # 4. a deferrable load takes the surplus before charging once the battery is well
+    #    charged, otherwise only what charging leaves (the battery may add to it below)
+    defer_pv = 0.0
+    want = 0.0
+    if defer_left > 0.0:
+        want = min(pump_w, defer_left) / p[P_IEFF]
+        if soc >= DEFER_MIN_SOC:
+            defer_pv = min(surplus, want)
+            surplus -= defer_pv
     limit = p[P_BCH]
     if soc > p[P_TAPER]:
         limit *= 1.0 - (1.0 - p[P_ACC]) * (soc - p[P_TAPER]) / (1.0 - p[P_TAPER])
@@ -128,13 +138,10 @@ def _step(g, tc, gen_w, crit_w, defer_left, pump_w, sep, p, op_t, mp_t, grid, e,
     charge = max(min(surplus, limit, room), 0.0)
     e += charge * p[P_ETAC]
     surplus -= charge
-    # 4. deferrable load from the rest of the surplus (the battery may add to it after the loads, below)
-    defer_pv = 0.0
-    want = 0.0
-    if defer_left > 0.0:
-        want = min(pump_w, defer_left) / p[P_IEFF]
-        defer_pv = min(surplus, want)
-        surplus -= defer_pv
+    if want > defer_pv:
+        more = min(surplus, want - defer_pv)
+        defer_pv += more
+        surplus -= more
     spill = surplus
     # 5. discharge: the deficit is general load first (the array served the rest first)
     def_g = min(deficit, gen_bus)

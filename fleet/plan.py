@@ -294,7 +294,7 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None) -> pd.DataFra
     service_ok = {"unmet": energy_ok, "tier": tier_ok, "both": energy_ok & tier_ok}[p_cfg["service_target"]]
     out["feasible"] = (service_ok
                        & (out.critical_unmet_fraction_design <= p_cfg["critical_reliability_target"] + 1e-12)
-                       & (out.deferrable_unmet_fraction_design <= out.target + 1e-12))
+                       & (out.deferrable_unmet_fraction_design <= p_cfg["deferrable_reliability_target"] + 1e-12))
     out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
         lcc_one * blocks, served_kwh_year, p["horizon_years"], p["discount_rate"])
     out["pair"] = np.arange(len(out))
@@ -321,8 +321,9 @@ def shortfall(row, cfg) -> str:
         parts.append(f"unmet energy {row.unmet_fraction_design:.1%} in the design year, target {row.target:.1%}")
     if row.critical_unmet_fraction_design > p["critical_reliability_target"] + 1e-12:
         parts.append(f"critical load unmet {row.critical_unmet_fraction_design:.1%}, target {p['critical_reliability_target']:.1%}")
-    if row.deferrable_unmet_fraction_design > row.target + 1e-12:
-        parts.append(f"deferrable energy unmet {row.deferrable_unmet_fraction_design:.1%}")
+    if row.deferrable_unmet_fraction_design > p["deferrable_reliability_target"] + 1e-12:
+        parts.append(f"deferrable energy unmet {row.deferrable_unmet_fraction_design:.1%}, "
+                     f"target {p['deferrable_reliability_target']:.0%}")
     if p["service_target"] in ("tier", "both") and row.tier_achieved_design < row.tier_required:
         parts.append(f"tier {row.tier_achieved_design} reached, tier {row.tier_required} required")
     return "; ".join(parts) or "meets every target"
