@@ -97,6 +97,18 @@ def cmd_plan(args: argparse.Namespace) -> int:
                                                                   label=str(args.sites))
         except InputError as exc:
             problems += exc.problems
+    if args.monthly_resource and "sites" in loaded:
+        from .errors import Problem
+        from .weather_files import read_monthly_table
+        try:
+            monthly = read_monthly_table(args.monthly_resource)
+            known = set(loaded["sites"].site_id.astype(str))
+            for sid in sorted(set(monthly) - known):
+                problems.append(Problem(str(args.monthly_resource), None, "site_id", f"site '{sid}' is not in {args.sites}"))
+            # a site's own weather file wins over the monthly table
+            loaded["weather_sources"] = {**monthly, **loaded.get("weather_sources", {})}
+        except InputError as exc:
+            problems += exc.problems
     if problems:
         raise InputError(problems)
     progress.stage(f"read {len(loaded['sites'])} sites from {args.sites}")
@@ -206,6 +218,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", metavar="DIR", help="run folder to create (default: outputs/<sites>-<timestamp>)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing run folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress messages")
+    p.add_argument("--monthly-resource", metavar="FILE",
+                   help="monthly irradiation per site (csv/xlsx: site_id, month, ghi_kwh_m2_day[, temp_mean_c, temp_min_c]) "
+                        "used instead of the embedded resource at those sites")
     p.add_argument("--tier-profiles", metavar="FILE",
                    help="survey-based hourly profiles (csv/xlsx: tier, month, day_type, h00..h23 in W) replacing built-in tiers")
     p.set_defaults(func=cmd_plan)

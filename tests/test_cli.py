@@ -221,3 +221,19 @@ def test_resource_command_reports_a_point():
     assert len(json.dumps(out)) > 100
     off = run_fleet("resource", "0", "-150")
     assert off.returncode == 2 and "Traceback" not in off.stderr
+
+
+def test_a_monthly_resource_table_sets_the_sites_irradiation(tmp_path):
+    # the table's monthly means come back as the site's mean daily GHI (weighted by days per month)
+    days = [31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31]
+    ghi = [4.0, 4.5, 5.0, 5.5, 6.0, 6.0, 5.5, 5.0, 5.0, 4.5, 4.0, 4.0]
+    rows = "\n".join(f"A,{m + 1},{g}" for m, g in enumerate(ghi))
+    (tmp_path / "monthly.csv").write_text("site_id,month,ghi_kwh_m2_day\n" + rows + "\n")
+    (tmp_path / "sites.csv").write_text("site_id,latitude,longitude,scheme,households_t1\nA,13.5,2.1,shs,5\n")
+    (tmp_path / "p.toml").write_text("[program]\nweather_years = 3\n")
+    res = run_fleet("plan", tmp_path / "sites.csv", "--config", tmp_path / "p.toml", "--monthly-resource",
+                    tmp_path / "monthly.csv", "--out", tmp_path / "run", "--quiet")
+    assert res.returncode == 0, res.stderr
+    sites = pd.read_excel(tmp_path / "run" / "deployment_summary.xlsx", sheet_name="sites")
+    expected = sum(d * g for d, g in zip(days, ghi)) / 365
+    assert sites["GHI (kWh/m2/day)"].iloc[0] == pytest.approx(expected, rel=0.04)
