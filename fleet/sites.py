@@ -509,32 +509,19 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
                 )
         counts[name] = values
 
-    def productive_problem(r: int, message: str) -> None:
-        bad_load_rows.add(r)
-        problem(row_number(r), "productive_kwh_day", message)
+    def daily_energy(name: str) -> np.ndarray:
+        """A non-negative kWh/day column; a bad cell also marks the row's load as unknown."""
 
-    productive = _float_column(
-        cells("productive_kwh_day"),
-        n_rows,
-        keep,
-        default=0.0,
-        check=lambda x: None if x >= 0 else "must be 0 or more kWh/day",
-        on_problem=productive_problem,
-        what="kWh/day",
-    )
-    def pumping_problem(r: int, message: str) -> None:
-        bad_load_rows.add(r)
-        problem(row_number(r), "pumping_kwh_day", message)
+        def on_problem(r: int, message: str) -> None:
+            bad_load_rows.add(r)
+            problem(row_number(r), name, message)
 
-    pumping = _float_column(
-        cells("pumping_kwh_day"),
-        n_rows,
-        keep,
-        default=0.0,
-        check=lambda x: None if x >= 0 else "must be 0 or more kWh/day",
-        on_problem=pumping_problem,
-        what="kWh/day",
-    )
+        return _float_column(cells(name), n_rows, keep, default=0.0,
+                             check=lambda x: None if x >= 0 else "must be 0 or more kWh/day",
+                             on_problem=on_problem, what="kWh/day")
+
+    productive = daily_energy("productive_kwh_day")
+    pumping = daily_energy("pumping_kwh_day")
     lo, hi = _TEMPERATURE_RANGE_C
     temperatures = {}
     for name in _TEMPERATURE_COLUMNS:
