@@ -118,16 +118,16 @@ def cmd_plan(args: argparse.Namespace) -> int:
     progress.stage("writing outputs")
     from .components import default_library_path
     from .config import default_config_path
-    paths = write_run(result, out, inputs={"sites": args.sites, "components": args.components or default_library_path(),
+    from .outputs import plan_tables
+    tables = plan_tables(result)
+    paths = write_run(result, out, tables=tables, inputs={"sites": args.sites, "components": args.components or default_library_path(),
                                            "config": args.config or default_config_path()},
                       overwrite=args.overwrite, started=started)
-    _print_summary(result, paths, time.perf_counter() - started)
+    _print_summary(result, tables, paths, time.perf_counter() - started)
     return 0
 
 
-def _print_summary(result, paths, seconds: float) -> None:
-    from .outputs import plan_tables
-    t = plan_tables(result)
+def _print_summary(result, t, paths, seconds: float) -> None:
     prog = t["program"].set_index("metric")
     lines = ["", f"Plan for {len(result.sites)} sites in {seconds:.0f} s", ""]
     for scheme, res in result.catalogues.items():

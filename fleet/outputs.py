@@ -249,12 +249,12 @@ def figures(result: PlanResult, tables: dict) -> dict:
 
 
 def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str], overwrite: bool = False,
-              started: float | None = None) -> dict[str, Path]:
+              started: float | None = None, tables: dict | None = None) -> dict[str, Path]:
     """Write all outputs into ``out_dir`` atomically and return their paths.
 
     The files are written into a hidden sibling folder first and moved into
     place only when all are complete, so a failed run leaves any earlier
-    run folder untouched.
+    run folder untouched. ``tables`` may pass in :func:`plan_tables` already built.
     """
     from .report import (write_bill_of_materials, write_deployment_html, write_deployment_summary,
                          write_sites_gpkg)
@@ -267,7 +267,7 @@ def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str]
         shutil.rmtree(tmp)
     tmp.mkdir()
     try:
-        tables = plan_tables(result)
+        tables = tables if tables is not None else plan_tables(result)
         notes = assumptions(result)
         spares = result.config["catalogue"]["spares_fraction"]
         write_bill_of_materials(tmp / "bill_of_materials.xlsx", tables["_bom"], tables["_kit_counts"],

@@ -60,6 +60,7 @@ class PlanResult:
     kits: pd.DataFrame  # every candidate
     bom: pd.DataFrame  # BOM lines of every candidate
     evaluations: pd.DataFrame  # one row per simulated (unit, kit[, blocks]) option
+    options: pd.DataFrame  # the feasible options the catalogue chose from
     catalogues: dict[str, CatalogueResult]
     comparisons: pd.DataFrame
     unserved: pd.DataFrame
@@ -441,7 +442,8 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     t = time.perf_counter()
     tracker.stage(f"dispatch ({len(pairs)} options x {cfg['program']['weather_years']} years)")
-    metrics = simulate_chunked(weather, demand, unit_parameters(units, cfg), params, tables, pairs, tracker)
+    unit_params = unit_parameters(units, cfg)
+    metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, tracker)
     timings["dispatch"] = time.perf_counter() - t
 
     t = time.perf_counter()
@@ -467,7 +469,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=catalogues,
                         comparisons=comparisons, unserved=unserved, weather=weather, demand=demand,
-                        unit_params=unit_parameters(units, cfg),
+                        unit_params=unit_params, options=options,
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
     result.traces = representative_traces(result, params, tables)
     return result
@@ -500,7 +502,7 @@ def simulate_chunked(weather: Weather, demand, unit_params, params, tables, pair
 
 def assigned_options(result: PlanResult) -> pd.DataFrame:
     """The evaluation row of the option each unit was given (units without a kit excluded)."""
-    opts = catalogue_options(result.evaluations)
+    opts = result.options
     parts = []
     for scheme, res in result.catalogues.items():
         a = res.assignment[res.assignment != ""].rename("kit_id").reset_index()
