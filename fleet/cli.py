@@ -200,6 +200,179 @@ def cmd_demand(args: argparse.Namespace) -> int:
     return 0
 
 
+EPILOG_EVALUATE = """\
+what it does
+  Simulates one named kit (or minigrid plant block) from the candidate list at every site of
+  its scheme, hour by hour over the program's weather years, as 'fleet plan' does for every
+  candidate, and reports its figures per service unit. Solar home system sites: every tier
+  group and facility gets one kit per member. Minigrid sites: the village gets a plant of
+  --blocks identical blocks or, without --blocks, the smallest count in 1..40 that meets every
+  target in the design weather year (40, with a note, where none does). Sites of the other
+  scheme are listed with the reason they were not evaluated.
+
+inputs
+  SITES           site table as for 'fleet plan' (see 'fleet plan --help')
+  --kit           a kit id from the candidate list; '--list-kits' prints them with their labels
+  --components, --config, --tier-profiles   as for 'fleet plan'
+
+table and CSV (one row per service unit; energy per kit, for a minigrid per plant)
+  design year     the weather year at the program's target_confidence quantile (0.9: a bad
+                  year in ten), read at the bad end of each metric
+  unmet_energy_fraction_design/_mean      unmet energy / demand (design year, mean of years)
+  loss_of_load_probability_design         hours with unmet load / 8760
+  loads_disconnected_h_design/_days_design  hours and days with the load output off (LVD)
+  evening_served_h_design                 evening hours (18-22 h, 1460 a year) fully served
+  full_service_days_design                days with no unmet load
+  pv_available/used/spilled_kwh_year      array energy at the controller output, used, unused
+  controller_loss_kwh_year, inverter_loss_kwh_year, battery_throughput_kwh_year
+  equivalent_full_cycles_year, soc_min, soc_mean, battery_life_years, battery_replacement_year
+  meets_target    meets the reliability target (site or program) and the critical and
+                  deferrable load targets; 'shortfall' says what is missed
+
+The figures are planning estimates, not an installation design; local electrical codes prevail.
+
+exit status: 0 done, 2 bad input or unknown kit (all problems listed), 1 unexpected failure.
+"""
+
+
+def _same_file(a, b) -> bool:
+    try:
+        return Path(a).resolve() == Path(b).resolve()
+    except OSError:
+        return False
+
+
+def _write_csv_atomically(table, path: Path) -> None:
+    """Write to a temporary file beside ``path``, then rename it over ``path``."""
+    import tempfile
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "w", newline="", encoding="utf-8") as fh:
+            table.to_csv(fh, index=False)
+        os.replace(tmp, path)
+    except BaseException:
+        if os.path.exists(tmp):
+            os.unlink(tmp)
+        raise
+
+
+def cmd_evaluate(args: argparse.Namespace) -> int:
+    from .components import read_library
+    from .config import load_config
+    from .errors import InputError, Problem
+    from .evaluate import KitChoiceError, candidate_kit_table, evaluate_kit
+    from .profiles import read_tier_profiles
+    from .sites import read_sites
+    from .weather_files import read_site_weather_sources
+
+    progress = _Progress(args.quiet)
+    problems, loaded = [], {}
+    if not args.list_kits and not args.kit:
+        problems.append(Problem("--kit", None, None, "required: the id of the kit to evaluate "
+                                                     "('fleet evaluate SITES --list-kits' lists them)"))
+    if args.blocks is not None and args.blocks < 1:
+        problems.append(Problem("--blocks", None, None, f"must be a whole number >= 1, got {args.blocks}"))
+    if args.csv:
+        csv = Path(args.csv)
+        inputs = [a for a in (args.sites, args.components, args.config, args.tier_profiles) if a]
+        if any(_same_file(csv, a) for a in inputs):
+            problems.append(Problem(str(csv), None, None, "is one of the inputs; choose another --csv file"))
+        elif csv.is_dir():
+            problems.append(Problem(str(csv), None, None, "is a folder; give a file name for --csv"))
+        elif not csv.parent.is_dir():
+            problems.append(Problem(str(csv), None, None, f"folder '{csv.parent}' does not exist"))
+    for name, fn, arg in (("sites", read_sites, args.sites), ("components", read_library, args.components),
+                          ("config", load_config, args.config),
+                          ("profiles", read_tier_profiles if args.tier_profiles else (lambda a: None), args.tier_profiles)):
+        try:
+            loaded[name] = fn(arg)
+        except InputError as exc:
+            problems += exc.problems
+    if "sites" in loaded:
+        try:
+            loaded["weather_sources"] = read_site_weather_sources(loaded["sites"], Path(args.sites).parent,
+                                                                  label=str(args.sites))
+        except InputError as exc:
+            problems += exc.problems
+    if problems:
+        raise InputError(problems)
+    sites, library, cfg = loaded["sites"], loaded["components"], loaded["config"]
+    sites.attrs["source"] = str(args.sites)
+    progress.stage(f"read {len(sites)} sites from {args.sites}")
+
+    if args.list_kits:
+        progress.stage("candidate kits")
+        kits = candidate_kit_table(sites, library, cfg, weather_sources=loaded.get("weather_sources"))
+        lines = []
+        for scheme, what in (("shs", "solar home system kits"), ("minigrid", "minigrid plant blocks")):
+            sel = kits[kits.scheme == scheme]
+            lines.append(f"{len(sel)} {what}:")
+            lines += [f"  {r.kit_id:<36} {r.kit_label}" for r in sel.itertuples(index=False)]
+            lines.append("")
+        lines.append("Evaluate one with: fleet evaluate SITES --kit KIT_ID")
+        print("\n".join(lines))
+        return 0
+
+    try:
+        table = evaluate_kit(sites, library, cfg, args.kit, blocks=args.blocks, tracker=progress,
+                             tier_profiles=loaded.get("profiles"), weather_sources=loaded.get("weather_sources"))
+    except KitChoiceError as exc:
+        option = "--blocks" if exc.option == "blocks" else "--kit"
+        hint = "" if exc.close_matches or option == "--blocks" else " ('fleet evaluate SITES --list-kits' lists them)"
+        raise InputError([Problem(option, None, None, f"{exc}{hint}")]) from None
+    print(_evaluation_text(table, cfg))
+    if args.csv:
+        _write_csv_atomically(table, Path(args.csv))
+        print(f"wrote {args.csv}")
+    return 0
+
+
+def _evaluation_text(table, cfg) -> str:
+    """The evaluation as a readable table: one line per unit, then notes and a summary."""
+    import textwrap
+
+    done = table[table.reason == ""]
+    skipped = table[table.reason != ""]
+    kit_id = str(table.kit_id.iat[0]) if len(table) else ""
+    p = cfg["program"]
+    cols = (("site_id", 12, "<"), ("unit", 13, "<"), ("members", 8, ">"), ("blocks", 7, ">"),
+            ("unmet %", 8, ">"), ("mean %", 7, ">"), ("LOLP %", 7, ">"), ("off h", 6, ">"),
+            ("eve. h", 7, ">"), ("SOC min", 8, ">"), ("cycles", 7, ">"), ("batt. y", 8, ">"), ("meets", 6, ">"))
+    head = "".join(f"{n:{a}{w}}" for n, w, a in cols)
+    lines = [f"kit {kit_id}: design year = the {p['target_confidence']:.0%} quantile of "
+             f"{p['weather_years']} weather years", "", head, "-" * len(head)]
+    for r in done.itertuples(index=False):
+        cells = (str(r.site_id)[:11], str(r.group)[:12], f"{int(r.count):,}", f"{int(r.blocks)}",
+                 f"{100 * r.unmet_energy_fraction_design:.1f}", f"{100 * r.unmet_energy_fraction_mean:.1f}",
+                 f"{100 * r.loss_of_load_probability_design:.1f}", f"{r.loads_disconnected_h_design:.0f}",
+                 f"{r.evening_served_h_design:.0f}", f"{r.soc_min:.2f}", f"{r.equivalent_full_cycles_year:.0f}",
+                 f"{r.battery_life_years:.1f}", "yes" if r.meets_target else "NO")
+        lines.append("".join(f"{c:{a}{w}}" for c, (_, w, a) in zip(cells, cols)))
+    lines.append("")
+    lines += textwrap.wrap("unmet %: unmet energy in the design year (mean %: over all years); LOLP %: share of "
+                           "hours with unmet load; off h: hours with loads disconnected; eve. h: evening hours (of "
+                           "1460) fully served; cycles: equivalent full cycles a year; batt. y: battery life, years",
+                           width=104)
+    for r in done[(~done.meets_target.astype(bool)) | (done.note != "")].itertuples(index=False):
+        text = "; ".join(t for t in (r.shortfall, r.note) if t)
+        lines.append(f"  {r.unit_id}: {text}")
+    if len(skipped):
+        ids = ", ".join(skipped.site_id.astype(str).head(8)) + (", ..." if len(skipped) > 8 else "")
+        what = {"shs": "solar home system", "minigrid": "minigrid"}[str(skipped.scheme.iat[0])]
+        lines.append(f"not evaluated: {len(skipped)} {what} site(s) ({ids}), the other scheme")
+    meets = done.meets_target.astype(bool).to_numpy()
+    kits = (done["count"].astype(float) * done["blocks"].astype(float)).to_numpy()
+    lines.append("")
+    lines.append(f"units meeting the target: {int(meets.sum())} of {len(done)} "
+                 f"({kits[meets].sum():,.0f} of {kits.sum():,.0f} kits or blocks)"
+                 + (f"; target {p['reliability_target']:.0%} unmet energy unless a site sets its own" if len(done) else ""))
+    lines += textwrap.wrap("Caution: planning estimates, not an installation design. Fuse every battery and string, "
+                           "size cables for ampacity and voltage drop, ventilate battery enclosures, use DC-rated "
+                           "switchgear (DC arcs do not go out by themselves); local electrical codes prevail.",
+                           width=104)
+    return "\n".join(lines)
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="fleet",
@@ -234,6 +407,21 @@ def build_parser() -> argparse.ArgumentParser:
     d.add_argument("--csv", metavar="FILE", help="also write the table as CSV")
     d.add_argument("--plot", metavar="FILE", help="also write a PNG of the mean day of each tier and facility")
     d.set_defaults(func=cmd_demand)
+    e = sub.add_parser("evaluate", help="one named kit at every site: reliability, energy flows, battery wear",
+                       description="Simulate one kit (or minigrid plant block) from the candidate list at every site "
+                                   "of its scheme and report its figures per service unit, as a table and a CSV.",
+                       epilog=EPILOG_EVALUATE, formatter_class=argparse.RawDescriptionHelpFormatter)
+    e.add_argument("sites", help="site table (.csv, .xlsx, .gpkg, .geojson); see 'fleet plan --help'")
+    e.add_argument("--kit", metavar="KIT", help="kit id to evaluate (see --list-kits)")
+    e.add_argument("--blocks", metavar="N", type=int,
+                   help="minigrid: blocks per plant (default: the smallest count in 1..40 meeting the targets)")
+    e.add_argument("--components", metavar="FILE", help="component library (folder of CSVs or .xlsx); default: bundled demo")
+    e.add_argument("--config", metavar="FILE", help="program file (.toml); default: bundled demo program")
+    e.add_argument("--tier-profiles", metavar="FILE", help="survey-based hourly profiles replacing built-in tiers")
+    e.add_argument("--csv", metavar="FILE", help="also write the table as CSV (one row per service unit)")
+    e.add_argument("--list-kits", action="store_true", help="print the candidate kit ids with their labels and stop")
+    e.add_argument("-q", "--quiet", action="store_true", help="no progress messages")
+    e.set_defaults(func=cmd_evaluate)
     from .cli_resource import add_parser as add_resource_parser
     add_resource_parser(sub)
     return parser

@@ -40,6 +40,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("system", "reconnect_hysteresis_soc"): (float, 0.0, 0.5, "state of charge"),
     ("system", "max_parallel_battery_strings"): (int, 1, 10, "strings"),
     ("system", "critical_shed_separation_soc"): (float, 0.0, 0.5, "state of charge"),
+    ("system", "battery_temp_offset_k"): (float, -10.0, 30.0, "K"),
     ("system", "design_cell_temp_hot_c"): (float, 30.0, 100.0, "degC"),
     ("temperature", "default_mean_c"): (float, -30.0, 50.0, "degC"),
     ("temperature", "default_min_c"): (float, -50.0, 40.0, "degC"),

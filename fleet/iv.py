@@ -46,7 +46,7 @@ from functools import lru_cache
 
 import numpy as np
 import pvlib
-from numba import njit
+from numba import njit, prange
 from pvlib.ivtools.sdm import fit_desoto
 from scipy import optimize
 
@@ -646,3 +646,72 @@ def tables_for_kits(kits, library, *, g_grid=G_GRID_W_M2, t_grid=T_GRID_C,
         grid=np.array(tables[0].grid, dtype=np.float64),
         tables=tables,
     )
+
+
+# ---------------------------------------------------------------------------
+# Hourly array power for the dispatch kernel
+# ---------------------------------------------------------------------------
+
+@njit(cache=True, parallel=True)
+def _array_power_kernel(poa, tcell, tables, site_idx, table_idx, g0, dg, t0, dt, out):
+    n_src = site_idx.shape[0]
+    n_years = poa.shape[1]
+    n_h = poa.shape[2]
+    for i in prange(n_src * n_years):
+        k = i // n_years
+        y = i % n_years
+        s = site_idx[k]
+        t = tables[table_idx[k]]
+        for h in range(n_h):
+            g = poa[s, y, h]
+            out[k, y, h] = table_lookup(t, g, tcell[s, y, h], g0, dg, t0, dt) if g > 0.0 else 0.0
+
+
+def array_power_per_string(poa_wm2, cell_temp_c, tables: "KitTables", site_idx, table_idx, which="operating"):
+    """Hourly per-string array power for (site, table) sources, W, float32.
+
+    Parameters
+    ----------
+    poa_wm2, cell_temp_c : float32 arrays (n_sites, n_years, n_hours)
+        Plane-of-array irradiance (W/m²) and cell temperature (°C).
+    tables : KitTables
+    site_idx, table_idx : int arrays (n_sources,)
+        The site and the table row of each source.
+    which : {'operating', 'mpp'}
+        Power at the controller's operating point, or at the maximum power point.
+
+    Returns
+    -------
+    float32 array (n_sources, n_years, n_hours): power at the string terminals
+    (array losses and controller efficiency are applied by the dispatch kernel).
+    """
+    stack = {"operating": tables.p_operating_w, "mpp": tables.p_mp_w}[which]
+    poa = np.asarray(poa_wm2, np.float32)
+    tc = np.asarray(cell_temp_c, np.float32)
+    site_idx = np.asarray(site_idx, np.int64)
+    out = np.zeros((site_idx.size,) + poa.shape[1:], np.float32)
+    if site_idx.size:
+        g0, dg, t0, dt = (float(v) for v in tables.grid)
+        _array_power_kernel(poa, tc, stack, site_idx, np.asarray(table_idx, np.int64), g0, dg, t0, dt, out)
+    return out
+
+
+def dark_reverse_current(params, v_module: float, temp_cell: float = 25.0) -> float:
+    """Current a module takes in the dark when a battery holds it at ``v_module`` (A, >= 0).
+
+    With no light the single-diode model leaves the diode and the shunt path:
+    ``I = I_o·(exp(V / a) − 1) + V / R_sh`` with the reference diode current,
+    modified ideality factor and shunt resistance of the fit (at night the
+    irradiance scaling of the shunt resistance does not apply; the reference
+    value stands for the dark shunt), and ``a`` scaled to the cell temperature.
+    This is the night-time reverse current a controller without a blocking
+    element lets flow from the battery through the array.
+
+    References
+    ----------
+    .. [1] De Soto, Klein & Beckman (2006), Solar Energy 80:78-88.
+    """
+    tk = temp_cell + 273.15
+    a = params["a_ref"] * tk / (params.get("temp_ref", STC_TEMPERATURE_C) + 273.15)
+    i_diode = params["I_o_ref"] * math.expm1(v_module / a)
+    return max(i_diode + v_module / params["R_sh_ref"], 0.0)

@@ -33,7 +33,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from .battery import CHEMISTRY, cycle_life_fit, self_discharge_per_hour
+from .battery import CHEMISTRY, CHEMISTRY_INDEX, VOLTAGE_MODEL, cells_in_series, cycle_life_fit, self_discharge_per_hour
 from .components import ComponentLibrary
 
 ABSORPTION_V_PER_12V = {"lead_acid": 14.4, "lifepo4": 14.2}  # common practice
@@ -153,7 +153,31 @@ def _kit_row(scheme, topology, system_v, module, n_series, n_parallel, battery, 
         "inverter_no_load_w": float(inverter.no_load_w) if inv else 0.0,
         "usable_dod": float(battery.usable_dod), "cycle_life_a": a, "cycle_life_b": b,
         "calendar_life_years": float(battery.calendar_life_years),
+        "battery_rated_hours": float(battery.rate_hours),
+        "battery_cells": cells_in_series(system_v, chem),
+        "inverter_rated_w": float(inverter.rated_power_w) if inv else 0.0,
+        "inverter_quadratic_per_w": (inverter_quadratic_loss(float(inverter.rated_power_w), float(inverter.efficiency),
+                                                             float(inverter.no_load_w)) if inv else 0.0),
+        "reverse_current_a": (0.0 if str(controller.blocks_reverse_current).strip().lower() == "yes"
+                              else night_reverse_current_a(module, n_series, system_v, chem) * n_parallel * n_controllers),
     }
+
+
+def inverter_quadratic_loss(rated_w: float, efficiency_at_rated: float, no_load_w: float) -> float:
+    """Coefficient q (1/W) of the inverter loss model ``loss = no_load + q·P_out²`` that gives
+    ``efficiency_at_rated`` at rated output (Jantsch, Schmidt & Schmid 1992, with the linear
+    term folded into the others)."""
+    loss = rated_w * (1.0 / efficiency_at_rated - 1.0)
+    return max(loss - no_load_w, 0.0) / rated_w ** 2
+
+
+def night_reverse_current_a(module, n_series: int, system_v: float, chemistry: str) -> float:
+    """Dark current of one string held at the battery's rest voltage at 70 % SOC (A),
+    from the module's single-diode fit at 20 degC (:func:`fleet.iv.dark_reverse_current`)."""
+    from .battery import open_circuit_voltage
+    from .iv import dark_reverse_current, fit_module
+    v_batt = float(open_circuit_voltage(0.7, chemistry, cells_in_series(system_v, chemistry)))
+    return dark_reverse_current(fit_module(module), v_batt / n_series, 20.0)
 
 
 def _bom(lib: ComponentLibrary, kit: dict) -> list[dict]:
@@ -330,22 +354,81 @@ def _line_cost(bom: pd.DataFrame, kind: str) -> pd.Series:
     return (sel.quantity_per_kit * sel.unit_price_usd).groupby(sel.kit_id).sum()
 
 
-KERNEL_COLUMNS = (
-    "array_wp", "mppt", "array_imp_a", "alpha_isc_per_k", "gamma_pmax_per_k", "charge_voltage_v",
-    "controller_efficiency", "controller_max_charge_w", "controller_self_w", "battery_nominal_wh",
-    "soc_lvd", "charge_efficiency", "discharge_efficiency", "battery_max_charge_w",
-    "battery_max_discharge_w", "self_discharge_per_h", "taper_start_soc", "acceptance_at_full",
-    "max_load_w", "inverter_efficiency", "inverter_no_load_w",
-)
-
-
 def kernel_parameters(kits: pd.DataFrame, tables, *, reconnect_hysteresis_soc: float,
-                      pv_losses_fraction: float) -> np.ndarray:
-    """Float64 matrix (n_kits, len(KERNEL_COLUMNS) + 4) for :mod:`fleet.dispatch`;
-    the last four columns are the reconnect SOC, the array loss fraction, the
-    strings in parallel and the row of the kit's array power table in
-    ``tables`` (a :class:`fleet.iv.KitTables`)."""
-    p = kits.loc[:, list(KERNEL_COLUMNS)].to_numpy(dtype=np.float64)
-    lvr = np.minimum(kits["soc_lvd"].to_numpy() + reconnect_hysteresis_soc, 0.95)
-    loss = np.full(len(kits), pv_losses_fraction)
-    return np.column_stack([p, lvr, loss, np.asarray(tables.strings, float), np.asarray(tables.table_index, float)])
+                      pv_losses_fraction: float, lvd_v_per_cell=None, lvr_v_per_cell=None) -> np.ndarray:
+    """Float64 matrix (n_kits, :data:`fleet.dispatch.N_PARAMS`) of the dispatch kernel's
+    :data:`fleet.dispatch.KIT_PARAMS`.
+
+    Charge set-points, temperature compensation, Peukert exponent and the other
+    chemistry constants come from :data:`fleet.battery.VOLTAGE_MODEL`. The
+    low-voltage disconnect of a DC kit's controller follows the discharge
+    current so that it acts at the design floor of state of charge (1 - usable
+    depth of discharge) whatever the load (current-compensated disconnect); an
+    AC system's inverter cuts off at a fixed voltage, the loaded voltage at the
+    design floor at its rated power, so that light loads take the battery
+    deeper, as on the hardware; the reconnect is the rest voltage
+    ``reconnect_hysteresis_soc`` above the floor. ``lvd_v_per_cell`` and
+    ``lvr_v_per_cell`` (arrays or scalars, 0 = derived) set them explicitly.
+    ``tables`` is the :class:`fleet.iv.KitTables` of the kits.
+    """
+    from .dispatch import KIND_CODE, KIT_PARAMS
+    n = len(kits)
+    out = np.zeros((n, len(KIT_PARAMS)))
+    col = {name: i for i, name in enumerate(KIT_PARAMS)}
+    strings = np.asarray(tables.strings, float)
+    t_idx = np.asarray(tables.table_index, np.int64)
+    v_string = np.array([tables.tables[t].v_battery_charge_v + tables.tables[t].drop_v for t in t_idx]) if n else np.zeros(0)
+    chem = kits["chemistry"].to_numpy()
+    model = [VOLTAGE_MODEL[c] for c in chem]
+    ah = kits["battery_ah"].to_numpy(float)
+    ac = (kits["topology"] == "ac").to_numpy()
+    system_v = kits["system_voltage_v"].to_numpy(float)
+    inv_rated = kits["inverter_rated_w"].to_numpy(float) if "inverter_rated_w" in kits else np.zeros(n)
+    ref_c = np.where(ac, inv_rated / np.maximum(system_v * ah, 1e-9), 1.0 / kits["battery_rated_hours"].to_numpy(float))
+    values = {
+        "array_multiplier": strings * (1.0 - pv_losses_fraction),
+        "controller_kind": kits["controller_kind"].map(KIND_CODE).to_numpy(float),
+        "string_charge_v": v_string,
+        "controller_efficiency": kits["controller_efficiency"].to_numpy(float),
+        "controller_max_a": kits["controller_max_charge_w"].to_numpy(float) / kits["charge_voltage_v"].to_numpy(float),
+        "controller_self_w": kits["controller_self_w"].to_numpy(float),
+        "battery_ah": ah,
+        "cells": kits["battery_cells"].to_numpy(float),
+        "chemistry": np.array([CHEMISTRY_INDEX[c] for c in chem], float),
+        "soc_lvd": kits["soc_lvd"].to_numpy(float),
+        "coulombic_efficiency": kits["charge_efficiency"].to_numpy(float),
+        "max_charge_c": kits["battery_max_charge_w"].to_numpy(float) / (ah * system_v),
+        "max_discharge_c": kits["battery_max_discharge_w"].to_numpy(float) / (ah * system_v),
+        "self_discharge_per_h": kits["self_discharge_per_h"].to_numpy(float),
+        "rated_hours": kits["battery_rated_hours"].to_numpy(float),
+        "max_load_w": kits["max_load_w"].to_numpy(float),
+        "ac": ac.astype(float),
+        "inverter_no_load_w": kits["inverter_no_load_w"].to_numpy(float),
+        "inverter_quadratic_per_w": kits["inverter_quadratic_per_w"].to_numpy(float),
+        "reverse_current_a": kits["reverse_current_a"].to_numpy(float),
+        "shunt_on_v": np.full(n, SHUNT_ON_VOLTAGE_V),
+        "reconnect_hysteresis_soc": np.full(n, reconnect_hysteresis_soc),
+        "disconnect_ref_c": ref_c,
+        "table_index": t_idx.astype(float),
+        "lvd_v_cell": np.broadcast_to(np.asarray(0.0 if lvd_v_per_cell is None else lvd_v_per_cell, float), (n,)),
+        "lvr_v_cell": np.broadcast_to(np.asarray(0.0 if lvr_v_per_cell is None else lvr_v_per_cell, float), (n,)),
+        "cycle_life_inv_a": 1.0 / kits["cycle_life_a"].to_numpy(float),
+        "cycle_life_b": kits["cycle_life_b"].to_numpy(float),
+        # DC controllers compensate the disconnect for the load current (it sits at the design
+        # floor at any current); an inverter's cut-off is a fixed voltage (# common practice)
+        "lvd_compensated": (~ac).astype(float),
+    }
+    for key, name in (("absorption_v_per_cell", "absorption_v_cell"), ("float_v_per_cell", "float_v_cell"),
+                      ("rebulk_v_per_cell", "rebulk_v_cell"), ("series_reconnect_v_per_cell", "series_reconnect_v_cell"),
+                      ("temp_comp_v_per_k_cell", "temp_comp_v_per_k_cell"), ("peukert_exponent", "peukert_exponent"),
+                      ("capacity_per_k", "capacity_per_k"), ("self_discharge_doubling_k", "self_discharge_doubling_k"),
+                      ("absorption_hours", "absorption_hours")):
+        values[name] = np.array([m[key] for m in model], float)
+    for name, v in values.items():
+        out[:, col[name]] = v
+    return out
+
+
+#: On-state voltage of a shunt controller's switch while it short-circuits the array, V
+#: (a MOSFET and its wiring; # common practice).
+SHUNT_ON_VOLTAGE_V = 0.3

@@ -21,7 +21,8 @@ from .components import ComponentLibrary
 from .config import ProgramConfig
 from .demand import HOURS_PER_YEAR, service_units, settings_from_config, unit_loads
 from .errors import InputError, Problem
-from .iv import tables_for_kits
+from .battery import voltage_tables
+from .iv import array_power_per_string, tables_for_kits
 from .kits import DesignConditions, candidate_kits, kernel_parameters
 from .pv import combined_losses_fraction
 from .resource import EMBEDDED, site_weather_from, utc_offset_hours
@@ -128,6 +129,7 @@ def build_weather(sites, cfg: ProgramConfig, tracker=None, weather_sources=None)
             "temp_mean_c_used": np.nan if w.temperature_from_data else temp_mean,
             "temp_mean_default": mean_default and not w.temperature_from_data,
             "temp_air_min_c": float(w.temp_air_c.min()),
+            "temp_air_mean_c": float(w.temp_air_c.mean()),
             "design_temp_min_default": not np.isfinite(s.design_temp_min_c),
             "ghi_kwh_m2_day": float(w.daily_ghi_kwh_m2.mean()),
             "poa_kwh_m2_year_mean": float(annual_poa.mean()), "poa_kwh_m2_year_min": float(annual_poa.min()),
@@ -236,7 +238,21 @@ def tier_achieved(supply_share: np.ndarray, share_needed: float, max_load_w: np.
     return achieved
 
 
-def evaluate(pairs, metrics, units, design, kits, cfg, sites=None) -> pd.DataFrame:
+def battery_temperature_c(sites, cfg: ProgramConfig, weather_info: pd.DataFrame | None = None) -> np.ndarray:
+    """Battery temperature per site, degC: the mean air temperature of its weather years
+    (the site's ``temp_mean_c`` or the program default where the data has none) plus the
+    program's enclosure offset."""
+    offset = cfg["system"].get("battery_temp_offset_k", 0.0)
+    if weather_info is not None and "temp_air_mean_c" in weather_info:
+        mean = weather_info["temp_air_mean_c"].to_numpy(dtype=float)
+    else:
+        mean = (sites["temp_mean_c"].to_numpy(dtype=float) if "temp_mean_c" in sites
+                else np.full(len(sites), np.nan))
+        mean = np.where(np.isfinite(mean), mean, cfg["temperature"]["default_mean_c"])
+    return mean + offset
+
+
+def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=None) -> pd.DataFrame:
     """Reliability, service and lifecycle cost of every simulated option."""
     m = {name: metrics[:, :, j] for j, name in enumerate(dispatch.METRICS)}
     q = cfg["program"]["target_confidence"]
@@ -253,9 +269,11 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None) -> pd.DataFra
                              m["served_wh"] / 365.0, household)
     needed = required_tier(units, sites)[pairs.unit_idx.to_numpy()] if sites is not None else np.zeros(len(u), int)
     throughput = m["battery_discharge_wh"].mean(axis=1)
-    life = battery.service_life_years(throughput, k.battery_nominal_wh.to_numpy(), k.usable_dod.to_numpy(),
-                                      k.cycle_life_a.to_numpy(), k.cycle_life_b.to_numpy(),
-                                      k.calendar_life_years.to_numpy())
+    temp_batt = (battery_temperature_c(sites, cfg, weather_info)[pairs.site_idx.to_numpy()]
+                 if sites is not None else np.full(len(pairs), 25.0))
+    calendar = np.array([float(battery.calendar_life_at(c, t, chem)) for c, t, chem in
+                         zip(k.calendar_life_years.to_numpy(), temp_batt, k.chemistry.to_numpy())])
+    life = battery.life_from_damage(m["cycle_damage"].mean(axis=1), calendar)
     e = cfg["economics"]
     p = cfg["program"]
     lcc_one = economics.lifecycle_cost(
@@ -282,8 +300,16 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None) -> pd.DataFra
         "evening_served_fraction_design": _design_quantile(m["evening_served_wh"] / np.maximum(m["evening_demand_wh"], 1e-9), q, worse="low"),
         "pv_spilled_fraction_mean": (m["pv_spilled_wh"] / np.maximum(m["pv_bus_wh"], 1e-9)).mean(axis=1),
         "soc_min": m["soc_min"].min(axis=1), "soc_mean": m["soc_mean"].mean(axis=1),
-        "battery_cycles_per_year": throughput / k.battery_nominal_wh.to_numpy(),
+        "battery_cycles_per_year": m["battery_discharge_ah"].mean(axis=1) / (k.battery_ah.to_numpy() * k.usable_dod.to_numpy()),
         "battery_life_years": life,
+        "battery_replacement_year": np.where(life < p["horizon_years"], np.ceil(life), np.nan),
+        "battery_temp_c": temp_batt,
+        "days_without_full_charge_max": m["max_days_without_full_charge"].max(axis=1),
+        "disconnected_days_design": _design_quantile(m["disconnected_days"], q),
+        "evening_hours_served_design": _design_quantile(m["evening_hours_served"], q, worse="low"),
+        "pv_used_fraction_mean": (m["pv_used_wh"] / np.maximum(m["pv_bus_wh"], 1e-9)).mean(axis=1),
+        "controller_loss_kwh_year": (m["controller_loss_wh"] + m["controller_self_wh"]).mean(axis=1) / 1000.0,
+        "inverter_loss_kwh_year": m["inverter_loss_wh"].mean(axis=1) / 1000.0,
         "served_kwh_year_per_kit": served_kwh_year,
         "capex_usd": k.capex_usd.to_numpy() * mult,
         "lifecycle_cost_usd": lcc_one * mult,
@@ -443,12 +469,13 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     t = time.perf_counter()
     tracker.stage(f"dispatch ({len(pairs)} options x {cfg['program']['weather_years']} years)")
     unit_params = unit_parameters(units, cfg)
-    metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, tracker)
+    metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, tracker,
+                               battery_temperature_c(sites, cfg, weather.info))
     timings["dispatch"] = time.perf_counter() - t
 
     t = time.perf_counter()
     tracker.stage("catalogue")
-    ev = evaluate(pairs, metrics, units, design, kits, cfg, sites)
+    ev = evaluate(pairs, metrics, units, design, kits, cfg, sites, weather.info)
     options = catalogue_options(ev)
     catalogues = {}
     c = cfg["catalogue"]
@@ -484,19 +511,40 @@ def unit_parameters(units: pd.DataFrame, cfg: ProgramConfig) -> np.ndarray:
 
 
 def simulate_chunked(weather: Weather, demand, unit_params, params, tables, pairs: pd.DataFrame, tracker,
-                     chunk: int = 4000) -> np.ndarray:
-    """Run the kernel over the option list in chunks (progress and bounded peak memory)."""
+                     battery_temp_c: np.ndarray, max_sources: int = 400) -> np.ndarray:
+    """Run the kernel over the option list, a group of sites at a time.
+
+    The hourly per-string array power of every (site, array table) source in the
+    group is computed first (:func:`fleet.iv.array_power_per_string`), then the
+    kernel runs every option of those sites. Peak memory is bounded by
+    ``max_sources`` x years x 8760 x 4 bytes, whatever the program size.
+    """
     n = len(pairs)
-    out = np.zeros((n, weather.poa_wm2.shape[1], dispatch.N_METRICS))
-    starts = range(0, n, chunk)
-    for a in tracker.wrap(starts, len(starts), "dispatch"):
-        b = min(a + chunk, n)
-        sl = pairs.iloc[a:b]
-        out[a:b] = dispatch.simulate_pairs(
-            weather.poa_wm2, weather.cell_temp_c, demand.general_w, demand.critical_w, unit_params, params,
-            tables.p_operating_w, tables.p_mp_w, tables.grid,
-            sl.site_idx.to_numpy(np.int64), sl.unit_idx.to_numpy(np.int64), sl.kit_idx.to_numpy(np.int64),
-            sl.blocks.to_numpy(np.float64))
+    n_years = weather.poa_wm2.shape[1]
+    out = np.zeros((n, n_years, dispatch.N_METRICS))
+    if n == 0:
+        return out
+    vt = voltage_tables()
+    site = pairs.site_idx.to_numpy(np.int64)
+    table = np.asarray(tables.table_index, np.int64)[pairs.kit_idx.to_numpy(np.int64)]
+    order = np.argsort(site, kind="stable")
+    # groups of whole sites, each with at most max_sources distinct (site, table) sources
+    groups, start, seen = [], 0, set()
+    for j, idx in enumerate(order):
+        key = (site[idx], table[idx])
+        if key not in seen and len(seen) >= max_sources and site[idx] != site[order[j - 1]]:
+            groups.append(order[start:j])
+            start, seen = j, set()
+        seen.add(key)
+    groups.append(order[start:])
+    for g in tracker.wrap(groups, len(groups), "dispatch"):
+        keys, src = np.unique(np.column_stack([site[g], table[g]]), axis=0, return_inverse=True)
+        pv = array_power_per_string(weather.poa_wm2, weather.cell_temp_c, tables, keys[:, 0], keys[:, 1])
+        sl = pairs.iloc[g]
+        out[g] = dispatch.simulate_pairs(
+            pv, demand.general_w, demand.critical_w, unit_params, params, vt,
+            np.asarray(src, np.int64).ravel(), sl.unit_idx.to_numpy(np.int64), sl.kit_idx.to_numpy(np.int64),
+            sl.blocks.to_numpy(np.float64), np.asarray(battery_temp_c, float)[site[g]])
     return out
 
 
@@ -525,12 +573,15 @@ def representative_traces(result: PlanResult, params: np.ndarray, tables) -> dic
         k_idx = int(result.kits.index[result.kits.kit_id == row.kit_id][0])
         s_idx = int(result.units.site_index.iat[u_idx])
         years = result.weather.poa_wm2.shape[1]
+        pv = array_power_per_string(result.weather.poa_wm2, result.weather.cell_temp_c, tables, [s_idx],
+                                    [int(tables.table_index[k_idx])])[0]
+        t_batt = float(battery_temperature_c(result.sites, result.config, result.weather.info)[s_idx])
         # the design year is the year whose unmet fraction is the design quantile
         unmet = []
         for y in range(years):
             up = result.unit_params[u_idx]
-            tr = dispatch.simulate_trace(result.weather.poa_wm2[s_idx, y], result.weather.cell_temp_c[s_idx, y],
-                                         result.demand.general_w[u_idx], params[k_idx], tables, float(pair.blocks),
+            tr = dispatch.simulate_trace(pv[y], result.demand.general_w[u_idx], params[k_idx],
+                                         battery_temp_c=t_batt, scale=float(pair.blocks),
                                          critical_w=result.demand.critical_w[u_idx], deferrable_wh_day=up[0],
                                          pump_w=up[1], shed_separation_soc=up[2])
             unmet.append((tr["load_w"].sum() - tr["served_w"].sum(), y, tr))

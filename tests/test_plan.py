@@ -69,7 +69,7 @@ def _frames(config, groups, critical):
     kits = pd.DataFrame({"kit_id": ["k"], "battery_nominal_wh": [1000.0], "usable_dod": [0.5], "cycle_life_a": [300.0],
                          "cycle_life_b": [1.0], "calendar_life_years": [5.0], "capex_usd": [100.0],
                          "battery_capex_usd": [30.0], "controller_capex_usd": [10.0], "inverter_capex_usd": [0.0],
-                         "max_load_w": [500.0]})
+                         "max_load_w": [500.0], "chemistry": ["lead_acid"], "battery_ah": [80.0]})
     pairs = pd.DataFrame({"unit_idx": range(len(groups)), "kit_idx": 0, "site_idx": 0, "blocks": 1, "target": 0.05})
     sites = pd.DataFrame({f"households_t{t}": [1] for t in range(1, 6)})
     return lambda metrics, cfg=config: evaluate(pairs, metrics, units, None, kits, cfg, sites)
