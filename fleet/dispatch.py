@@ -1011,3 +1011,40 @@ def simulate(pv_string_w, load_w, params, *, critical_w=None, unit_params=None, 
         usable_ah = params[kk, K_AH] * (1.0 - params[kk, K_SOCLVD])
         df["equivalent_full_cycles"] = df.battery_discharge_ah / np.repeat(usable_ah, n_years)
     return df
+
+
+#: Metrics where a high value is the bad outcome (the design year takes their upper quantile);
+#: for the rest of :data:`SUMMARY_METRICS` low is bad.
+_HIGH_IS_BAD = ("unmet_energy_fraction", "loss_of_load_probability", "disconnected_hours", "disconnected_days",
+                "max_days_without_full_charge", "cycle_damage", "pv_spilled_wh")
+SUMMARY_METRICS = _HIGH_IS_BAD + ("days_full_service", "evening_hours_served", "soc_min", "served_wh")
+
+
+def summarise_years(runs, confidence: float = 0.9):
+    """Mean and design-year value of the main metrics across weather years.
+
+    Parameters
+    ----------
+    runs : DataFrame
+        From :func:`simulate` (one row per unit, kit and weather year).
+    confidence : float
+        The design year is the empirical ``confidence`` quantile of the years
+        (inverted CDF) of each metric, taken on the bad side: the upper quantile
+        where high is bad (unmet energy, hours disconnected ...), the lower where
+        low is bad (days of full service, minimum SOC ...).
+
+    Returns
+    -------
+    DataFrame indexed by (unit, kit) with ``<metric>_mean`` and ``<metric>_design``
+    columns for every name in :data:`SUMMARY_METRICS`.
+    """
+    import pandas as pd
+    g = runs.groupby(["unit", "kit"], sort=False)
+    out = {}
+    for name in SUMMARY_METRICS:
+        out[f"{name}_mean"] = g[name].mean()
+        if name in _HIGH_IS_BAD:
+            out[f"{name}_design"] = g[name].agg(lambda v: np.quantile(v, confidence, method="inverted_cdf"))
+        else:
+            out[f"{name}_design"] = g[name].agg(lambda v: -np.quantile(-v, confidence, method="inverted_cdf"))
+    return pd.DataFrame(out)

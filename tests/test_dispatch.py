@@ -801,3 +801,18 @@ def test_n_blocks_sharing_a_load_equal_one_block_with_its_share(kits, params):
     np.testing.assert_allclose(shared, one, rtol=1e-6, atol=1e-6)
     alone = run(load3, crit3, up * [n_blocks, n_blocks, 1.0], 1.0)  # the whole load on one block differs
     assert alone[METRICS.index("unmet_wh")] > 2 * one[METRICS.index("unmet_wh")]
+
+
+def test_year_summary_takes_the_design_year_on_the_bad_side():
+    # source: Hyndman & Fan (1996), The American Statistician 50:361, definition 1 (inverted empirical
+    # CDF): of ten years the 0.9 quantile is the 9th smallest value; for a metric where low is bad the
+    # design year is the 2nd smallest (the same bad year of ten seen from the other side)
+    import pandas as pd
+    from fleet.dispatch import SUMMARY_METRICS, summarise_years
+    years = np.arange(10)
+    values = np.arange(1.0, 11.0)[::-1]
+    runs = pd.DataFrame({"unit": 0, "kit": "k", "year": years, **{m: values for m in SUMMARY_METRICS}})
+    s = summarise_years(runs, 0.9).iloc[0]
+    assert s["unmet_energy_fraction_design"] == 9.0 and s["soc_min_design"] == 2.0
+    assert s["days_full_service_design"] == 2.0 and s["disconnected_hours_design"] == 9.0
+    assert s["served_wh_mean"] == 5.5
