@@ -950,7 +950,7 @@ def simulate_trace(pv_string_w, load_w, params_row, *, battery_temp_c=25.0, scal
 
 
 def simulate(pv_string_w, load_w, params, *, critical_w=None, unit_params=None, battery_temp_c=25.0,
-             scale=None, kit_ids=None) -> "pd.DataFrame":
+             scale=None, kit_ids=None):
     """Metrics of one or many kits serving one or many loads over weather years.
 
     Every combination of load (unit) and kit is simulated in every weather year.

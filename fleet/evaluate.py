@@ -27,12 +27,11 @@ import pandas as pd
 from .components import ComponentLibrary
 from .config import ProgramConfig
 from .dispatch import METRICS
-from .demand import service_units, settings_from_config, unit_loads
 from .iv import tables_for_kits
 from .kits import DesignConditions, candidate_kits, kernel_parameters
-from .plan import (_Quiet, array_losses, battery_temperature_c, build_weather, evaluate, shortfall,
+from .plan import (_Quiet, array_losses, battery_temperature_c, build_demand, build_weather, evaluate, shortfall,
                    simulate_chunked, unit_parameters)
-from .resource import MeasuredYear, utc_offset_hours
+from .resource import MeasuredYear
 
 #: Largest block count tried per minigrid village when none is given.
 MAX_BLOCKS = 40
@@ -242,12 +241,8 @@ def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: s
         raise KitChoiceError(f"blocks must be a whole number >= 1, got {blocks}", option="blocks")
 
     tracker.stage("demand")
-    units = service_units(sites)
-    offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
-    demand = unit_loads(sites, units, settings_from_config(cfg, tier_profiles), seed=cfg["program"]["seed"],
-                        utc_offsets_h=offsets)
+    units, demand = build_demand(sites, cfg, tier_profiles)
     design = demand.design
-    units = pd.concat([units, design], axis=1)
 
     # the kit list needs the weather only where a measured year sets the cold design temperature;
     # otherwise an unknown kit is reported before the weather is built

@@ -268,7 +268,6 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     achieved = tier_achieved(supply_share, cfg["program"]["tier_days_share"], k.max_load_w.to_numpy(),
                              m["served_wh"] / 365.0, household)
     needed = required_tier(units, sites)[pairs.unit_idx.to_numpy()] if sites is not None else np.zeros(len(u), int)
-    throughput = m["battery_discharge_wh"].mean(axis=1)
     temp_batt = (battery_temperature_c(sites, cfg, weather_info)[pairs.site_idx.to_numpy()]
                  if sites is not None else np.full(len(pairs), 25.0))
     calendar = np.array([float(battery.calendar_life_at(c, t, chem)) for c, t, chem in
@@ -408,6 +407,16 @@ def compare(ev, options, units, catalogues, cfg) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def build_demand(sites, cfg: ProgramConfig, tier_profiles: dict | None = None):
+    """Service units of every site with their design demand columns, and their hourly loads
+    (:class:`fleet.demand.UnitDemand`) on each site's local clock."""
+    units = service_units(sites)
+    offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
+    demand = unit_loads(sites, units, settings_from_config(cfg, tier_profiles), seed=cfg["program"]["seed"],
+                        utc_offsets_h=offsets)
+    return pd.concat([units, demand.design], axis=1), demand
+
+
 def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
              tier_profiles: dict | None = None, weather_sources: dict | None = None) -> PlanResult:
     """Plan a program end to end; see the module docstring.
@@ -423,12 +432,8 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     t = time.perf_counter()
 
     tracker.stage("demand")
-    units = service_units(sites)
-    offsets = np.array([utc_offset_hours(la, lo) for la, lo in zip(sites.latitude, sites.longitude)])
-    demand = unit_loads(sites, units, settings_from_config(cfg, tier_profiles), seed=cfg["program"]["seed"],
-                        utc_offsets_h=offsets)
+    units, demand = build_demand(sites, cfg, tier_profiles)
     design = demand.design
-    units = pd.concat([units, design], axis=1)
     timings["demand"] = time.perf_counter() - t
 
     t = time.perf_counter()
