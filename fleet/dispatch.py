@@ -162,6 +162,12 @@ M = {name: i for i, name in enumerate(METRICS)}
 (S_C, S_N, S_VABS, S_VFLOAT, S_VREBULK, S_VSERREC, S_LVD, S_LVR, S_SHED, S_SHEDREC, S_SD, S_K1, S_XN,
  S_ETA, S_XREF, S_LVDK, S_SHEDK) = range(17)
 N_SETPOINTS = 17
+#: The hour's context is one flat vector per pair: kit parameters, set-points, then the
+#: chemistry's voltage tables (4 rows of 21 knots). One array crossing into the inlined hour
+#: costs one pair of reference-count operations; three cost three.
+OFF_S = N_PARAMS
+OFF_V = N_PARAMS + N_SETPOINTS
+N_CONTEXT = OFF_V + 4 * 21
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -178,10 +184,13 @@ def _interp(vt, row, soc):
 
 
 @njit(cache=True, error_model="numpy")
-def _soc_at_voltage(vt, x, v_cell, s_hi):
+def _soc_at_voltage(c, x, v_cell, s_hi):
     """Largest SOC s <= s_hi at which the discharging cell voltage ocv(s) - x r(s) is at most
     ``v_cell`` (the voltage falls monotonically as the battery empties); 0 if none."""
-    f_hi = _interp(vt, 0, s_hi) - x * _interp(vt, 2, s_hi)
+    i, f = _knot(s_hi)
+    o = OFF_V
+    r = OFF_V + 42
+    f_hi = c[o + i] + f * (c[o + i + 1] - c[o + i]) - x * (c[r + i] + f * (c[r + i + 1] - c[r + i]))
     if f_hi <= v_cell:
         return s_hi
     s_a = s_hi
@@ -191,7 +200,7 @@ def _soc_at_voltage(vt, x, v_cell, s_hi):
         k = 20
     while k >= 0:
         s_k = k * 0.05
-        f_k = vt[0, k] - x * vt[2, k]
+        f_k = c[o + k] - x * c[r + k]
         if f_k <= v_cell and s_k < s_a:
             return s_k + (v_cell - f_k) / (f_a - f_k) * (s_a - s_k)
         if s_k < s_a:
@@ -250,6 +259,19 @@ def pair_setpoints(p, vt, temp_c, sep):
     return s
 
 
+@njit(cache=True, error_model="numpy")
+def context(p, vt, temp_c, sep):
+    """The flat per-pair vector the hour reads: kit parameters, set-points
+    (:func:`pair_setpoints`) and the chemistry's voltage tables."""
+    c = np.empty(N_CONTEXT)
+    c[:N_PARAMS] = p
+    c[OFF_S:OFF_V] = pair_setpoints(p, vt, temp_c, sep)
+    for row in range(4):
+        for k in range(21):
+            c[OFF_V + row * 21 + k] = vt[row, k]
+    return c
+
+
 @njit(cache=True, inline="always", error_model="numpy")
 def _knot(soc):
     """(segment index, fraction) of ``soc`` on the 21 evenly spaced SOC knots, clamped."""
@@ -260,11 +282,6 @@ def _knot(soc):
         return 19, 1.0
     i = int(x)
     return i, x - i
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def _at(vt, row, i, f):
-    return vt[row, i] + f * (vt[row, i + 1] - vt[row, i])
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -291,61 +308,58 @@ def _peukert(x, xn, k1):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _v_dis(vt, soc, x):
-    """Cell voltage while discharging at C-rate x."""
-    i, f = _knot(soc)
-    return _at(vt, 0, i, f) - x * _at(vt, 2, i, f)
-
-
-@njit(cache=True, inline="always", error_model="numpy")
-def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
+def _step(pvs, gw, cw, want, c, soc, on_g, on_c, stage, abs_h):
     """One hour; see the module docstring. ``pvs`` is per-string array power at the
     operating point (W), ``gw``/``cw`` the general and critical load of one member (W),
     ``want`` the deferrable power wanted this hour (W). Returns the new state and the
-    hour's flows (Wh; Ah for the ``_ah`` values)."""
-    cap = sp[S_C]
-    n = sp[S_N]
+    hour's flows (Wh; Ah for the ``_ah`` values).
+
+    Table lookups are written out in place rather than through helpers that take the
+    table: every inlined helper call with an array argument costs two atomic reference
+    count operations, which were most of the hour's time."""
+    cap = c[OFF_S + S_C]
+    n = c[OFF_S + S_N]
     ncap = n * cap
     i0, f0 = _knot(soc)
-    ocv = _at(vt, 0, i0, f0)
+    ocv = (c[OFF_V + 0 + i0] + f0 * (c[OFF_V + 0 + i0 + 1] - c[OFF_V + 0 + i0]))
     v_rest = n * ocv
-    kind = p[K_KIND]
-    eff = p[K_CEFF]
+    kind = c[K_KIND]
+    eff = c[K_CEFF]
     # 1. array at the controller output
     avail = 0.0
     shunt_w = 0.0
     i_arr = 0.0
     if pvs > 0.0:
         if kind == 3.0:
-            avail = pvs * p[K_MULT] * eff
-            lim = p[K_CMAXA] * v_rest
+            avail = pvs * c[K_MULT] * eff
+            lim = c[K_CMAXA] * v_rest
             if avail > lim:
                 avail = lim
         else:
-            i_arr = pvs * p[K_MULT] / p[K_VSTR]
-            if i_arr > p[K_CMAXA]:
-                i_arr = p[K_CMAXA]
+            i_arr = pvs * c[K_MULT] / c[K_VSTR]
+            if i_arr > c[K_CMAXA]:
+                i_arr = c[K_CMAXA]
             avail = i_arr * v_rest * eff
     open_ = stage == 3
     usable = 0.0 if open_ else avail
     if open_ and kind == 2.0:
-        shunt_w = i_arr * p[K_SHUNTV]
+        shunt_w = i_arr * c[K_SHUNTV]
     # 2. demand on the bus
-    max_load = p[K_MAXLOAD]
+    max_load = c[K_MAXLOAD]
     crit_out = min(cw, max_load) if on_c else 0.0
     gen_out = min(gw, max_load - crit_out) if on_g else 0.0
     if not on_c:
         want = 0.0
     f = 1.0
     nl = 0.0
-    if p[K_AC] > 0.0:
-        f = 1.0 + p[K_IQ] * (crit_out + gen_out + want)
+    if c[K_AC] > 0.0:
+        f = 1.0 + c[K_IQ] * (crit_out + gen_out + want)
         if on_c:
-            nl = p[K_INL]
+            nl = c[K_INL]
     crit_bus = crit_out * f + nl
     gen_bus = gen_out * f
-    rev_w = p[K_REV] * v_rest if pvs <= 0.0 else 0.0
-    self_bus = p[K_CSELF] + rev_w
+    rev_w = c[K_REV] * v_rest if pvs <= 0.0 else 0.0
+    self_bus = c[K_CSELF] + rev_w
     demand_bus = self_bus + crit_bus + gen_bus
     direct = min(usable, demand_bus)
     surplus = usable - direct
@@ -363,18 +377,18 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
     regulated = False
     s = soc
     if surplus > 0.0:
-        rch = _at(vt, 1, i0, f0)
-        v_set = sp[S_VFLOAT] if stage == 2 else sp[S_VABS]
+        rch = (c[OFF_V + 21 + i0] + f0 * (c[OFF_V + 21 + i0 + 1] - c[OFF_V + 21 + i0]))
+        v_set = c[OFF_S + S_VFLOAT] if stage == 2 else c[OFF_S + S_VABS]
         x_acc = (v_set - ocv) / rch
         if x_acc < 0.0:
             x_acc = 0.0
-        eta = sp[S_ETA] * _at(vt, 3, i0, f0)
+        eta = c[OFF_S + S_ETA] * (c[OFF_V + 63 + i0] + f0 * (c[OFF_V + 63 + i0 + 1] - c[OFF_V + 63 + i0]))
         x_room = (1.0 - soc) / eta
         b = ncap * ocv
         x = 2.0 * surplus / (b + math.sqrt(b * b + 4.0 * ncap * rch * surplus))
         if x > x_acc or x > x_room:
             regulated = True  # the battery voltage reached the set-point, or the battery is full
-        x_ch = max(min(x, p[K_MAXC], x_room, x_acc), 0.0)
+        x_ch = max(min(x, c[K_MAXC], x_room, x_acc), 0.0)
         charge_w = min(x_ch * ncap * (ocv + x_ch * rch), surplus)
         charge_ah = x_ch * cap * eta
         s = soc + x_ch * eta
@@ -405,13 +419,13 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
             i1, f1 = i0, f0
         else:
             i1, f1 = _knot(s)
-        ocv_s = _at(vt, 0, i1, f1)
-        rdis = _at(vt, 2, i1, f1)
+        ocv_s = (c[OFF_V + 0 + i1] + f1 * (c[OFF_V + 0 + i1 + 1] - c[OFF_V + 0 + i1]))
+        rdis = (c[OFF_V + 42 + i1] + f1 * (c[OFF_V + 42 + i1 + 1] - c[OFF_V + 42 + i1]))
         a = ncap * rdis
         b = ncap * ocv_s
-        xmax = p[K_MAXD]
-        xn = sp[S_XN]
-        k1 = sp[S_K1]
+        xmax = c[K_MAXD]
+        xn = c[OFF_S + S_XN]
+        k1 = c[OFF_S + S_K1]
         t_left = 1.0
         if def_g > 0.0:
             x, p_ok = _discharge_rate(deficit, a, b, xmax)
@@ -423,15 +437,17 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
             pf = _peukert(x, xn, k1)
             ah = p_ok / (b - a * x) * pf  # C-rates of charge drawn in the hour
             s_end = s - ah
-            thr = sp[S_SHED] + sp[S_SHEDK] * (sp[S_XREF] - x)
-            if s_end >= 0.0 and _v_dis(vt, s_end, x) >= thr:
+            thr = c[OFF_S + S_SHED] + c[OFF_S + S_SHEDK] * (c[OFF_S + S_XREF] - x)
+            ie, fe = _knot(s_end)
+            v_end = c[OFF_V + 0 + ie] + fe * (c[OFF_V + 0 + ie + 1] - c[OFF_V + 0 + ie]) - x * (c[OFF_V + 42 + ie] + fe * (c[OFF_V + 42 + ie + 1] - c[OFF_V + 42 + ie]))
+            if s_end >= 0.0 and v_end >= thr:
                 dis_w = p_ok
                 dis_ah = ah * cap
                 s = s_end
                 t_left = 0.0
                 x_dis = x
             else:
-                s_cut = _soc_at_voltage(vt, x, thr, s)
+                s_cut = _soc_at_voltage(c, x, thr, s)
                 tau = (s - s_cut) / ah if ah > 0.0 else 0.0
                 if tau > 1.0:
                     tau = 1.0
@@ -444,7 +460,7 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
                 t_left = 1.0 - tau
                 on_g_new = False
                 x_dis = x
-                if sp[S_SHED] <= sp[S_LVD] and sp[S_SHEDK] <= sp[S_LVDK]:
+                if c[OFF_S + S_SHED] <= c[OFF_S + S_LVD] and c[OFF_S + S_SHEDK] <= c[OFF_S + S_LVDK]:
                     # no separate shedding stage: the one disconnect takes every output off
                     on_c_new = False
                     unmet_c += def_c * t_left
@@ -453,8 +469,8 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
             pw = def_c + def_s
             if t_left < 1.0:
                 i1, f1 = _knot(s)
-                ocv_s = _at(vt, 0, i1, f1)
-                rdis = _at(vt, 2, i1, f1)
+                ocv_s = (c[OFF_V + 0 + i1] + f1 * (c[OFF_V + 0 + i1 + 1] - c[OFF_V + 0 + i1]))
+                rdis = (c[OFF_V + 42 + i1] + f1 * (c[OFF_V + 42 + i1 + 1] - c[OFF_V + 42 + i1]))
                 a = ncap * rdis
                 b = ncap * ocv_s
             x, p_ok = _discharge_rate(pw, a, b, xmax)
@@ -467,8 +483,10 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
             pf = _peukert(x, xn, k1)
             ah = p_ok / (b - a * x) * pf
             s_end = s - ah * t_left
-            thr = sp[S_LVD] + sp[S_LVDK] * (sp[S_XREF] - x)
-            if def_c <= 0.0 or (s_end >= 0.0 and _v_dis(vt, s_end, x) >= thr):
+            thr = c[OFF_S + S_LVD] + c[OFF_S + S_LVDK] * (c[OFF_S + S_XREF] - x)
+            ie, fe = _knot(s_end)
+            v_end = c[OFF_V + 0 + ie] + fe * (c[OFF_V + 0 + ie + 1] - c[OFF_V + 0 + ie]) - x * (c[OFF_V + 42 + ie] + fe * (c[OFF_V + 42 + ie + 1] - c[OFF_V + 42 + ie]))
+            if def_c <= 0.0 or (s_end >= 0.0 and v_end >= thr):
                 unmet_c += uc * t_left
                 unmet_s += us2 * t_left
                 if s_end < 0.0:  # only self-consumption left: it stops when the battery is flat
@@ -484,7 +502,7 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
                 if x > x_dis:
                     x_dis = x
             else:
-                s_cut = _soc_at_voltage(vt, x, thr, s)
+                s_cut = _soc_at_voltage(c, x, thr, s)
                 tau = (s - s_cut) / ah if ah > 0.0 else 0.0
                 if tau > t_left:
                     tau = t_left
@@ -499,8 +517,8 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
                 t2 = t_left - tau
                 if def_s > 0.0 and t2 > 0.0:
                     i2, f2 = _knot(s)
-                    o2 = _at(vt, 0, i2, f2)
-                    r2 = _at(vt, 2, i2, f2)
+                    o2 = (c[OFF_V + 0 + i2] + f2 * (c[OFF_V + 0 + i2 + 1] - c[OFF_V + 0 + i2]))
+                    r2 = (c[OFF_V + 42 + i2] + f2 * (c[OFF_V + 42 + i2 + 1] - c[OFF_V + 42 + i2]))
                     x2, p2 = _discharge_rate(def_s, ncap * r2, ncap * o2, xmax)
                     ah2 = p2 / (ncap * (o2 - x2 * r2))
                     d_s = min(ah2 * t2, s)
@@ -514,13 +532,13 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
     # the battery adds to the deferrable load while well charged and not needed by the loads
     extra = want_bus - defer_pv
     if extra > 0.0 and s > DEFER_MIN_SOC and on_c_new:
-        room_x = p[K_MAXD] - x_dis
+        room_x = c[K_MAXD] - x_dis
         if room_x > 0.0:
             i3, f3 = _knot(s)
-            o3 = _at(vt, 0, i3, f3)
-            r3 = _at(vt, 2, i3, f3)
+            o3 = (c[OFF_V + 0 + i3] + f3 * (c[OFF_V + 0 + i3 + 1] - c[OFF_V + 0 + i3]))
+            r3 = (c[OFF_V + 42 + i3] + f3 * (c[OFF_V + 42 + i3 + 1] - c[OFF_V + 42 + i3]))
             x, pw = _discharge_rate(extra, ncap * r3, ncap * o3, room_x)
-            ah = pw / (ncap * (o3 - x * r3)) * _peukert(x, sp[S_XN], sp[S_K1])
+            ah = pw / (ncap * (o3 - x * r3)) * _peukert(x, c[OFF_S + S_XN], c[OFF_S + S_K1])
             if ah > s - DEFER_MIN_SOC:
                 pw *= (s - DEFER_MIN_SOC) / ah
                 ah = s - DEFER_MIN_SOC
@@ -542,7 +560,7 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
     ctrl_loss = used * (1.0 / eff - 1.0)
     resid = (used + dis_w) - (gen_bus_served + crit_bus_served + defer_bus + self_served + charge_w)
     # 6. self-discharge
-    sd = s * sp[S_SD]
+    sd = s * c[OFF_S + S_SD]
     s -= sd
     if s < 0.0:
         s = 0.0
@@ -550,11 +568,11 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
     series_like = kind == 1.0 or kind == 2.0
     if (not on_c_new) or (not on_g_new) or stage >= 2 or regulated:
         i4, f4 = _knot(s)
-        ocv_end = _at(vt, 0, i4, f4)
+        ocv_end = (c[OFF_V + 0 + i4] + f4 * (c[OFF_V + 0 + i4 + 1] - c[OFF_V + 0 + i4]))
         if series_like:
             if regulated:
                 stage = 3
-            elif stage == 3 and ocv_end - x_dis * _at(vt, 2, i4, f4) <= sp[S_VSERREC]:
+            elif stage == 3 and ocv_end - x_dis * (c[OFF_V + 42 + i4] + f4 * (c[OFF_V + 42 + i4 + 1] - c[OFF_V + 42 + i4])) <= c[OFF_S + S_VSERREC]:
                 stage = 0
         else:
             if regulated:
@@ -562,16 +580,16 @@ def _step(pvs, gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h):
                     stage = 1
                 if stage == 1:
                     abs_h += 1.0
-                    if abs_h >= p[K_ABSH]:
+                    if abs_h >= c[K_ABSH]:
                         stage = 2
-            if stage == 2 and ocv_end < sp[S_VREBULK]:
+            if stage == 2 and ocv_end < c[OFF_S + S_VREBULK]:
                 stage = 0
                 abs_h = 0.0
         # reconnect on the battery voltage (at rest, or raised by the charging current)
-        v_end = ocv_end + x_ch * _at(vt, 1, i4, f4) if x_ch > 0.0 else ocv_end
-        if (not on_c_new) and v_end >= sp[S_LVR]:
+        v_end = ocv_end + x_ch * (c[OFF_V + 21 + i4] + f4 * (c[OFF_V + 21 + i4 + 1] - c[OFF_V + 21 + i4])) if x_ch > 0.0 else ocv_end
+        if (not on_c_new) and v_end >= c[OFF_S + S_LVR]:
             on_c_new = True
-        if (not on_g_new) and on_c_new and v_end >= sp[S_SHEDREC]:
+        if (not on_g_new) and on_c_new and v_end >= c[OFF_S + S_SHEDREC]:
             on_g_new = True
     return (s, on_g_new, on_c_new, stage, abs_h, avail, used, spill, charge_w, charge_ah, dis_w, dis_ah,
             gen_served, crit_served, defer_out, defer_pv / f, inv_loss, ctrl_self, rev_served, ctrl_loss, shunt_w,
@@ -585,8 +603,8 @@ def _push(stack, n, x, inv_a, b):
     return push_reversal(stack, n, x, inv_a, b)
 
 
-@njit(cache=True, error_model="numpy")
-def _warm_up(pv, gen, crit, unit_p, scale, p, sp, vt):
+@njit(cache=True, error_model="numpy", _nrt=False)  # no reference counting in the hour loops
+def _warm_up(pv, gen, crit, unit_p, scale, c):
     """State after running the year's last WARMUP_HOURS from full charge."""
     soc = 1.0
     on_g = True
@@ -602,16 +620,16 @@ def _warm_up(pv, gen, crit, unit_p, scale, p, sp, vt):
                 stage = 0
                 abs_h = 0.0
         want = min(unit_p[U_PUMP_W] * inv, defer_left) if defer_left > 0.0 else 0.0
-        r = _step(pv[h], gen[h] * inv, crit[h] * inv, want, p, sp, vt, soc, on_g, on_c, stage, abs_h)
+        r = _step(pv[h], gen[h] * inv, crit[h] * inv, want, c, soc, on_g, on_c, stage, abs_h)
         soc, on_g, on_c, stage, abs_h = r[0], r[1], r[2], r[3], r[4]
         defer_left -= r[14]
     return soc, on_g, on_c, stage, abs_h
 
 
-@njit(cache=True, error_model="numpy")
-def _simulate_year(pv, gen, crit, unit_p, scale, p, sp, vt, stack, out):
+@njit(cache=True, error_model="numpy", _nrt=False)
+def _simulate_year(pv, gen, crit, unit_p, scale, c, stack, out):
     # sums are kept in scalars (registers) and written to ``out`` once, at the end
-    soc, on_g, on_c, stage, abs_h = _warm_up(pv, gen, crit, unit_p, scale, p, sp, vt)
+    soc, on_g, on_c, stage, abs_h = _warm_up(pv, gen, crit, unit_p, scale, c)
     demand = served_sum = unmet_sum = unmet_h = off_h = full_days = 0.0
     ev_demand = ev_served = avail_sum = used_sum = spill_sum = dis_sum = ch_sum = 0.0
     self_sum = inv_sum = soc_sum = full_charge_days = resid = 0.0
@@ -630,8 +648,8 @@ def _simulate_year(pv, gen, crit, unit_p, scale, p, sp, vt, stack, out):
     inv = 1.0 / scale
     defer_day = unit_p[U_DEFER_WH] * inv
     pump = unit_p[U_PUMP_W] * inv
-    inv_a = p[K_INVA]
-    b_exp = p[K_B]
+    inv_a = c[K_INVA]
+    b_exp = c[K_B]
     # rainflow on the state of charge: reversals through a gate, counted as they come
     n_st = 0
     damage = 0.0
@@ -653,7 +671,7 @@ def _simulate_year(pv, gen, crit, unit_p, scale, p, sp, vt, stack, out):
         lw = gw + cw
         was_on = on_g
         want = min(pump, defer_left) if defer_left > 0.0 else 0.0
-        r = _step(pv[h], gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h)
+        r = _step(pv[h], gw, cw, want, c, soc, on_g, on_c, stage, abs_h)
         soc, on_g, on_c, stage, abs_h = r[0], r[1], r[2], r[3], r[4]
         gen_served = r[12]
         crit_served = r[13]
@@ -837,11 +855,10 @@ def simulate_pairs(pv_w, general, critical, unit_params, params, vtables, source
     for i in prange(n_pairs):
         u = unit_idx[i]
         p = params[kit_idx[i]]
-        vt = vtables[int(p[K_CHEM])]
-        sp = pair_setpoints(p, vt, battery_temp_c[i], unit_params[u, U_SEP])
+        c = context(p, vtables[int(p[K_CHEM])], battery_temp_c[i], unit_params[u, U_SEP])
         stack = np.empty(RAINFLOW_STACK)
         for y in range(n_years):
-            _simulate_year(pv_w[source_idx[i], y], general[u], critical[u], unit_params[u], scale[i], p, sp, vt,
+            _simulate_year(pv_w[source_idx[i], y], general[u], critical[u], unit_params[u], scale[i], c,
                            stack, out[i, y])
     return out
 
@@ -854,8 +871,8 @@ TRACE_FIELDS = ("soc", "connected", "critical_connected", "charge_stage", "pv_bu
 
 
 @njit(cache=True, error_model="numpy")
-def _trace(pv, gen, crit, unit_p, scale, p, sp, vt):
-    soc, on_g, on_c, stage, abs_h = _warm_up(pv, gen, crit, unit_p, scale, p, sp, vt)
+def _trace(pv, gen, crit, unit_p, scale, c):
+    soc, on_g, on_c, stage, abs_h = _warm_up(pv, gen, crit, unit_p, scale, c)
     out = np.zeros((HOURS, len(TRACE_FIELDS)))
     soc0 = soc
     defer_left = 0.0
@@ -871,7 +888,7 @@ def _trace(pv, gen, crit, unit_p, scale, p, sp, vt):
         out[h, 1] = 1.0 if on_g else 0.0
         out[h, 2] = 1.0 if on_c else 0.0
         want = min(unit_p[U_PUMP_W] * inv, defer_left) if defer_left > 0.0 else 0.0
-        r = _step(pv[h], gw, cw, want, p, sp, vt, soc, on_g, on_c, stage, abs_h)
+        r = _step(pv[h], gw, cw, want, c, soc, on_g, on_c, stage, abs_h)
         soc, on_g, on_c, stage, abs_h = r[0], r[1], r[2], r[3], r[4]
         defer_left -= r[14]
         out[h, 0] = soc
@@ -897,7 +914,8 @@ def _trace(pv, gen, crit, unit_p, scale, p, sp, vt):
         out[h, 22] = r[21]
         out[h, 23] = 1.0 if r[22] else 0.0
         out[h, 24] = r[23]
-        out[h, 25] = sp[S_N] * _interp(vt, 0, soc)
+        i, f = _knot(soc)
+        out[h, 25] = c[OFF_S + S_N] * (c[OFF_V + i] + f * (c[OFF_V + i + 1] - c[OFF_V + i]))
     return out, soc0
 
 
@@ -941,8 +959,9 @@ def simulate_trace(pv_string_w, load_w, params_row, *, battery_temp_c=25.0, scal
     gen = np.ascontiguousarray(load_w, np.float32)
     crit = np.zeros_like(gen) if critical_w is None else np.ascontiguousarray(critical_w, np.float32)
     unit_p = np.array([deferrable_wh_day, pump_w, shed_separation_soc], np.float64)
-    sp = pair_setpoints(p, vt, float(battery_temp_c), float(shed_separation_soc))
-    arr, soc0 = _trace(np.ascontiguousarray(pv_string_w, np.float32), gen, crit, unit_p, float(scale), p, sp, vt)
+    c = context(p, np.ascontiguousarray(vt), float(battery_temp_c), float(shed_separation_soc))
+    sp = c[OFF_S:OFF_V].copy()
+    arr, soc0 = _trace(np.ascontiguousarray(pv_string_w, np.float32), gen, crit, unit_p, float(scale), c)
     d = {name: arr[:, k] for k, name in enumerate(TRACE_FIELDS)}
     d["initial_soc"] = soc0
     d["setpoints"] = sp
