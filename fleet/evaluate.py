@@ -72,6 +72,9 @@ COLUMNS = {
     "equivalent_full_cycles_year": "Ah discharged / usable Ah, mean, cycles/year",
     "soc_min": "lowest state of charge over all years",
     "soc_mean": "mean state of charge",
+    "days_without_full_charge_max": "longest run of days without reaching full charge (lead-acid needs one "
+                                    "regularly), days",
+    "battery_temp_c": "battery temperature used (site mean air temperature + enclosure offset), degC",
     "battery_life_years": "sooner of cycle wear-out (rainflow) and calendar life at the site, years",
     "battery_replacement_year": "year of the first battery replacement within the horizon (blank: none)",
     "served_kwh_year": "energy served per kit (minigrid: per plant), mean, kWh/year",
@@ -100,6 +103,8 @@ FROM_PLAN = {
     "equivalent_full_cycles_year": "battery_cycles_per_year",
     "soc_min": "soc_min",
     "soc_mean": "soc_mean",
+    "days_without_full_charge_max": "days_without_full_charge_max",
+    "battery_temp_c": "battery_temp_c",
     "battery_life_years": "battery_life_years",
     "battery_replacement_year": "battery_replacement_year",
     "served_kwh_year": "served_kwh_year_per_kit",
