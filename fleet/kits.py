@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from .battery import CHEMISTRY, CHEMISTRY_INDEX, VOLTAGE_MODEL, cells_in_series, cycle_life_fit, self_discharge_per_hour
+from .cables import fuse_rating_a, smallest_section_mm2, string_fuses_needed, voltage_drop_v
 from .components import ComponentLibrary
 
 ABSORPTION_V_PER_12V = {"lead_acid": 14.4, "lifepo4": 14.2}  # common practice
@@ -160,6 +161,43 @@ def _kit_row(scheme, topology, system_v, module, n_series, n_parallel, battery, 
                                                              float(inverter.no_load_w)) if inv else 0.0),
         "reverse_current_a": (0.0 if str(controller.blocks_reverse_current).strip().lower() == "yes"
                               else night_reverse_current_a(module, n_series, system_v, chem) * n_parallel * n_controllers),
+        **wiring(scheme, system_v, module, n_series, n_parallel, controller, inverter),
+    }
+
+
+#: One-way cable runs assumed for sizing, m (# common practice for household kits and plant blocks;
+#: a site survey replaces them).
+CABLE_RUNS_M = {"shs": {"pv": 10.0, "battery": 1.5}, "minigrid": {"pv": 30.0, "battery": 3.0}}
+MAX_DROP_FRACTION = 0.03
+
+
+def wiring(scheme: str, system_v: float, module, n_series: int, n_parallel: int, controller, inverter) -> dict:
+    """Cable cross-sections and fuse ratings of a kit (per controller).
+
+    * PV circuit: 125 % of the strings' short-circuit current (NEC 690.8(A)(1)), sized for 125 %
+      of that continuously (NEC 690.8(B)) and a drop of at most 3 % of the string's maximum-power
+      voltage over the assumed run; a fuse per string from three strings in parallel (NEC 690.9).
+    * Battery circuit: the larger of the controller's rated current and the inverter's input
+      current at rated power and 90 % of nominal voltage, sized the same way against the system
+      voltage; the battery fuse at the next standard rating above 125 % of it (NEC 240.6(A)).
+    Conductor resistances per IEC 60228 class 5 copper at 50 degC (:mod:`fleet.cables`).
+    """
+    runs = CABLE_RUNS_M[scheme]
+    i_pv = NEC_690_8_FACTOR * float(module.isc_a) * n_parallel
+    v_string = float(module.vmp_v) * n_series
+    pv_mm2 = smallest_section_mm2(i_pv, runs["pv"], v_string, MAX_DROP_FRACTION)
+    i_bat = float(controller.rated_current_a)
+    if inverter is not None:
+        i_bat = max(i_bat, float(inverter.rated_power_w) / (float(inverter.efficiency) * 0.9 * system_v))
+    bat_mm2 = smallest_section_mm2(i_bat, runs["battery"], system_v, MAX_DROP_FRACTION)
+    drop = (lambda i, run, sec, v: float(voltage_drop_v(i, run, sec, 50.0)) / v * 100.0 if np.isfinite(sec) else np.nan)
+    return {
+        "pv_circuit_current_a": i_pv, "pv_cable_mm2": pv_mm2,
+        "pv_cable_drop_pct": drop(i_pv, runs["pv"], pv_mm2, v_string),
+        "string_fuse_a": fuse_rating_a(NEC_690_8_FACTOR * float(module.isc_a)) if string_fuses_needed(n_parallel) else np.nan,
+        "battery_circuit_current_a": i_bat, "battery_cable_mm2": bat_mm2,
+        "battery_cable_drop_pct": drop(i_bat, runs["battery"], bat_mm2, system_v),
+        "battery_fuse_a": fuse_rating_a(i_bat),
     }
 
 
