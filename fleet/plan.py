@@ -15,7 +15,7 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from . import battery, dispatch, economics
+from . import battery, dispatch, economics, rule_of_thumb
 from .catalogue import CatalogueResult, custom_best, optimise_catalogue
 from .components import ComponentLibrary
 from .config import ProgramConfig
@@ -381,8 +381,9 @@ def explain_unserved(units, ev, screened, catalogues, options, result_cfg=None) 
                                        "nearest_kit_id", "nearest_unmet_fraction_design"])
 
 
-def compare(ev, options, units, catalogues, cfg) -> pd.DataFrame:
-    """The plan beside a custom best kit per unit and a single kit type per scheme."""
+def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = None) -> pd.DataFrame:
+    """The plan beside a custom best kit per unit, a single kit type per scheme and, when
+    given, the rule-of-thumb sizing (:mod:`fleet.rule_of_thumb`), with simulated reliability."""
     rows = []
     for scheme, res in catalogues.items():
         sch_units = units[units.scheme == scheme].unit_id.tolist()
@@ -395,14 +396,20 @@ def compare(ev, options, units, catalogues, cfg) -> pd.DataFrame:
                                  cost_per_type_usd=cfg["catalogue"]["cost_per_kit_type_usd"],
                                  solver=cfg["catalogue"]["solver"], time_limit_s=cfg["catalogue"]["time_limit_s"])
         single = opts.merge(one.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
-        for name, sel, ntypes in (("plan (standard catalogue)", plan, len(res.chosen_kits)),
-                                  ("custom best kit per unit", custom, custom.kit_id.nunique() if len(custom) else 0),
-                                  ("one kit type for all", single, 1 if len(single) else 0)):
+        designs = [("plan (standard catalogue)", plan, len(res.chosen_kits)),
+                   ("custom best kit per unit", custom, custom.kit_id.nunique() if len(custom) else 0),
+                   ("one kit type for all", single, 1 if len(single) else 0)]
+        if thumb is not None and len(thumb):
+            rot = thumb[thumb.scheme == scheme].rename(columns={"lifecycle_cost_usd": "cost_usd"})
+            designs.append(("rule of thumb (design-month sun, days of autonomy)", rot, rot.kit_id.nunique()))
+        for name, sel, ntypes in designs:
+            meets = (sel.unmet_fraction_design <= sel.target + 1e-12) & sel.get("feasible", True)
             rows.append({
                 "scheme": scheme, "design": name, "kit types": ntypes,
                 "units served": int(len(sel)), "units in scheme": len(sch_units),
                 "capex (USD)": float(sel.capex_usd.sum()), "lifecycle cost (USD)": float(sel.cost_usd.sum()),
                 "mean unmet energy, design year (%)": float(100 * np.average(sel.unmet_fraction_design, weights=sel["count"])) if len(sel) else np.nan,
+                "units meeting every target": int(np.sum(meets)) if len(sel) else 0,
             })
     return pd.DataFrame(rows)
 
@@ -491,7 +498,9 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
             max_types=c[f"max_kit_types_{scheme}"], cost_per_type_usd=c["cost_per_kit_type_usd"],
             solver=c["solver"], time_limit_s=c["time_limit_s"])
     unserved = explain_unserved(units, ev, screened, catalogues, options, cfg)
-    comparisons = compare(ev, options, units, catalogues, cfg)
+    sun = pd.Series(rule_of_thumb.design_month_sun_hours(weather.poa_wm2), index=weather.info.site_id.to_numpy())
+    comparisons = compare(ev, options, units, catalogues, cfg,
+                          thumb=rule_of_thumb.choose(ev, units, kits, sun) if len(ev) else None)
     timings["catalogue"] = time.perf_counter() - t
     for scheme, res in catalogues.items():
         if res.gap > 0.01:

@@ -51,6 +51,11 @@ def test_every_unit_is_served_or_explained_and_targets_hold(tiny_sites, library,
             if k:
                 assert (ev.loc[(u, k)].unmet_fraction_design <= 0.05 + 1e-12).any()
     assert r.evaluations.balance_residual_wh.max() < 1e-3
+    # the comparisons carry the rule-of-thumb sizing with its simulated reliability
+    thumb = r.comparisons[r.comparisons.design.str.startswith("rule of thumb")]
+    assert set(thumb.scheme) == {"shs", "minigrid"}
+    assert (thumb["units served"] == thumb["units in scheme"]).all()
+    assert (r.comparisons["units meeting every target"] <= r.comparisons["units served"]).all()
 
 
 def _metrics(n_pairs, years, **values):
