@@ -178,7 +178,8 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         "ghi_kwh_m2_day": "GHI (kWh/m2/day)", "temp_mean_default_used": "default temperature used"})
     unserved_table = result.unserved.rename(columns={"nearest_unmet_fraction_design": "nearest option unmet energy (fraction)"})
     return {"program": program, "demand_by_tier": demand_by_tier(result), "by_district": by_district, "by_depot": by_depot, "sites": sites_table,
-            "kit_types": kit_types, "comparisons": result.comparisons, "unserved": unserved_table,
+            "kit_types": kit_types, "comparisons": result.comparisons,
+            "cost_curves": result.cost_curves, "unserved": unserved_table,
             "_bom": bom, "_kit_counts": kit_counts, "_site_layer": site_layer, "_chosen": c}
 
 

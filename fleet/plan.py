@@ -73,6 +73,7 @@ class PlanResult:
     rejected_designs: pd.DataFrame
     config: ProgramConfig
     traces: dict[str, dict] = field(default_factory=dict)
+    cost_curves: pd.DataFrame = field(default_factory=pd.DataFrame)
 
 
 def array_losses(cfg: ProgramConfig) -> float:
@@ -318,9 +319,12 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     energy_ok = out.unmet_fraction_design <= out.target + 1e-12
     tier_ok = out.tier_achieved_design >= out.tier_required
     service_ok = {"unmet": energy_ok, "tier": tier_ok, "both": energy_ok & tier_ok}[p_cfg["service_target"]]
-    out["feasible"] = (service_ok
-                       & (out.critical_unmet_fraction_design <= p_cfg["critical_reliability_target"] + 1e-12)
-                       & (out.deferrable_unmet_fraction_design <= p_cfg["deferrable_reliability_target"] + 1e-12))
+    others_ok = ((tier_ok if p_cfg["service_target"] in ("tier", "both") else True)
+                 & (out.critical_unmet_fraction_design <= p_cfg["critical_reliability_target"] + 1e-12)
+                 & (out.deferrable_unmet_fraction_design <= p_cfg["deferrable_reliability_target"] + 1e-12))
+    out["feasible"] = service_ok & others_ok
+    # what the option meets apart from the unit's energy target (for curves against the target)
+    out["meets_other_targets"] = others_ok
     out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
         lcc_one * blocks, served_kwh_year, p["horizon_years"], p["discount_rate"])
     out["pair"] = np.arange(len(out))
@@ -414,6 +418,53 @@ def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = No
     return pd.DataFrame(rows)
 
 
+#: Points of the cost curves every run draws: catalogue sizes, and energy targets (unmet fraction).
+CURVE_KIT_TYPES = tuple(range(1, 9))
+CURVE_TARGETS = (0.01, 0.02, 0.05, 0.10, 0.20)
+
+
+def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, kit_types=CURVE_KIT_TYPES,
+                targets=CURVE_TARGETS, time_limit_s: float = 20.0) -> pd.DataFrame:
+    """Lifecycle cost of the best catalogue against the number of kit types allowed (at the
+    program's targets) and against the energy target (at the program's number of types), per
+    scheme: one integer program per point (:func:`fleet.catalogue.optimise_catalogue`).
+
+    Under a uniform target ``t`` an option counts when its design-year unmet fraction is at
+    most ``t`` and it meets the other targets (critical and deferrable loads, tier of service).
+    Returns one row per point with the solver's status and gap.
+    """
+    c = cfg["catalogue"]
+    limit = min(float(c["time_limit_s"]), time_limit_s)
+    energy_mode = cfg["program"]["service_target"] in ("unmet", "both")
+    rows = []
+    for scheme in ("shs", "minigrid"):
+        scheme_units = units[units.scheme == scheme].unit_id.tolist()
+        if not scheme_units:
+            continue
+        points = [("kit types", float(k), catalogue_options(ev), int(k)) for k in kit_types]
+        for t in targets:
+            ok = ev.meets_other_targets & ((ev.unmet_fraction_design <= t + 1e-12) if energy_mode else True)
+            points.append(("energy target (unmet fraction)", float(t), catalogue_options(ev.assign(feasible=ok)),
+                           int(c[f"max_kit_types_{scheme}"])))
+        for varied, value, opts, k in points:
+            o = opts[opts.scheme == scheme]
+            res = optimise_catalogue(o[["unit_id", "kit_id", "cost_usd"]], scheme_units, max_types=k,
+                                     cost_per_type_usd=c["cost_per_kit_type_usd"], solver=c["solver"],
+                                     time_limit_s=limit)
+            chosen = o.merge(res.assignment[res.assignment != ""].rename("kit_id").reset_index(),
+                             on=["unit_id", "kit_id"])
+            rows.append({
+                "scheme": scheme, "varied": varied, "value": value, "kit types allowed": k,
+                "kit types chosen": len(res.chosen_kits), "units served": int(len(chosen)),
+                "units in scheme": len(scheme_units),
+                "lifecycle cost (USD)": float(chosen.cost_usd.sum()),
+                "lifecycle cost with type costs (USD)": float(chosen.cost_usd.sum()
+                                                              + len(res.chosen_kits) * c["cost_per_kit_type_usd"]),
+                "solver status": res.status, "gap (%)": 100.0 * res.gap,
+            })
+    return pd.DataFrame(rows)
+
+
 def build_demand(sites, cfg: ProgramConfig, tier_profiles: dict | None = None):
     """Service units of every site with their design demand columns, and their hourly loads
     (:class:`fleet.demand.UnitDemand`) on each site's local clock."""
@@ -501,6 +552,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     sun = pd.Series(rule_of_thumb.design_month_sun_hours(weather.poa_wm2), index=weather.info.site_id.to_numpy())
     comparisons = compare(ev, options, units, catalogues, cfg,
                           thumb=rule_of_thumb.choose(ev, units, kits, sun) if len(ev) else None)
+    curves = cost_curves(ev, units, cfg)
     timings["catalogue"] = time.perf_counter() - t
     for scheme, res in catalogues.items():
         if res.gap > 0.01:
@@ -510,6 +562,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=catalogues,
                         comparisons=comparisons, unserved=unserved, weather=weather, demand=demand,
+                        cost_curves=curves,
                         unit_params=unit_params, options=options,
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
     result.traces = representative_traces(result, params, tables)

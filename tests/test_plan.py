@@ -56,6 +56,18 @@ def test_every_unit_is_served_or_explained_and_targets_hold(tiny_sites, library,
     assert set(thumb.scheme) == {"shs", "minigrid"}
     assert (thumb["units served"] == thumb["units in scheme"]).all()
     assert (r.comparisons["units meeting every target"] <= r.comparisons["units served"]).all()
+    # cost curves: allowing more kit types never costs more (the integer program's optimum with
+    # K+1 types is at most that with K, type costs included), and a looser target never costs more
+    # for the same units served
+    for scheme, g in r.cost_curves.groupby("scheme"):
+        k = g[g.varied == "kit types"].sort_values("value")
+        assert list(k.value) == list(range(1, 9)) and (k["solver status"] == "Optimal").all()
+        same = k["units served"] == k["units served"].iloc[-1]
+        cost = k.loc[same, "lifecycle cost with type costs (USD)"].to_numpy()
+        assert (np.diff(cost) <= 1e-6 * cost[0]).all()
+        t = g[g.varied.str.startswith("energy target")].sort_values("value")
+        t = t[t["units served"] == t["units served"].max()]
+        assert (np.diff(t["lifecycle cost with type costs (USD)"].to_numpy()) <= 1e-6).all()
 
 
 def _metrics(n_pairs, years, **values):
