@@ -92,7 +92,7 @@ def merge_identical_units(options: pd.DataFrame) -> tuple[pd.DataFrame, pd.Serie
 
 def optimise_catalogue(options: pd.DataFrame, all_units: list[str], *, max_types: int,
                        cost_per_type_usd: float, solver: str = "cbc", time_limit_s: float = 120.0,
-                       allowed_kits: list[str] | None = None) -> CatalogueResult:
+                       allowed_kits: list[str] | None = None, lp_bound: bool = True) -> CatalogueResult:
     """Choose at most ``max_types`` kit types and assign units at least cost.
 
     Parameters
@@ -108,6 +108,9 @@ def optimise_catalogue(options: pd.DataFrame, all_units: list[str], *, max_types
         Fixed cost of carrying one kit type (F).
     allowed_kits : list of str, optional
         Restrict the choice to these kit types (used for comparisons).
+    lp_bound : bool
+        Also solve the LP relaxation for a lower bound and the gap (default). Without it the
+        gap is 0 when the solver proves optimality and NaN otherwise.
     """
     t0 = time.perf_counter()
     opts = options if allowed_kits is None else options[options.kit_id.isin(allowed_kits)]
@@ -141,9 +144,10 @@ def optimise_catalogue(options: pd.DataFrame, all_units: list[str], *, max_types
         prob += pulp.lpSum(y.values()) <= max_types
         return prob, y, x, z
 
-    relaxed, *_ = build(True)
-    relaxed.solve(_solver(solver, time_limit_s))
-    bound = float(pulp.value(relaxed.objective) or 0.0)
+    if lp_bound:
+        relaxed, *_ = build(True)
+        relaxed.solve(_solver(solver, time_limit_s))
+        bound = float(pulp.value(relaxed.objective) or 0.0)
     prob, y, x, z = build(False)
     prob.solve(_solver(solver, time_limit_s))
     status = pulp.LpStatus[prob.status]
@@ -158,9 +162,11 @@ def optimise_catalogue(options: pd.DataFrame, all_units: list[str], *, max_types
     for u in servable:
         assignment[u] = case_kit.get(case_of[u], "")
     objective = float(pulp.value(prob.objective) or 0.0)
+    if not lp_bound:
+        bound = objective if status == "Optimal" else float("nan")
     gap = (objective - bound) / objective if objective > 0 else 0.0
     unserved = [u for u in all_units if assignment[u] == ""]
-    return CatalogueResult(sorted(chosen), assignment, status, objective, bound, max(gap, 0.0),
+    return CatalogueResult(sorted(chosen), assignment, status, objective, bound, gap if np.isnan(gap) else max(gap, 0.0),
                            int(case_of.max() + 1), len(all_units), time.perf_counter() - t0, solver, unserved)
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import time
 import zlib
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any, Callable, Iterable
 
@@ -424,14 +425,17 @@ CURVE_TARGETS = (0.01, 0.02, 0.05, 0.10, 0.20)
 
 
 def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, kit_types=CURVE_KIT_TYPES,
-                targets=CURVE_TARGETS, time_limit_s: float = 20.0) -> pd.DataFrame:
+                targets=CURVE_TARGETS, time_limit_s: float = 20.0,
+                solved: dict[str, CatalogueResult] | None = None) -> pd.DataFrame:
     """Lifecycle cost of the best catalogue against the number of kit types allowed (at the
     program's targets) and against the energy target (at the program's number of types), per
     scheme: one integer program per point (:func:`fleet.catalogue.optimise_catalogue`).
 
     Under a uniform target ``t`` an option counts when its design-year unmet fraction is at
     most ``t`` and it meets the other targets (critical and deferrable loads, tier of service).
-    Returns one row per point with the solver's status and gap.
+    Returns one row per point with the solver's status and gap (0 when the solver proves the
+    point optimal; no separate LP bound is solved for the curves). ``solved`` (the run's own
+    catalogues) is reused at the program's point.
     """
     c = cfg["catalogue"]
     limit = min(float(c["time_limit_s"]), time_limit_s)
@@ -446,11 +450,31 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
             ok = ev.meets_other_targets & ((ev.unmet_fraction_design <= t + 1e-12) if energy_mode else True)
             points.append(("energy target (unmet fraction)", float(t), catalogue_options(ev.assign(feasible=ok)),
                            int(c[f"max_kit_types_{scheme}"])))
-        for varied, value, opts, k in points:
+        k_program = int(c[f"max_kit_types_{scheme}"])
+        t_program = cfg["program"]["reliability_target"]
+        uniform = bool(np.allclose(ev.target.to_numpy(float), t_program)) if len(ev) else True
+        def solve(o, k):
+            return optimise_catalogue(o[["unit_id", "kit_id", "cost_usd"]], scheme_units, max_types=k,
+                                      cost_per_type_usd=c["cost_per_kit_type_usd"], solver=c["solver"],
+                                      time_limit_s=limit, lp_bound=False)
+
+        # the run's own catalogue is a point when the options are the same: always on the kit-type
+        # curve, and on the target curve when no site sets its own target; the other points are
+        # solved two at a time (the solver runs as a separate process)
+        results = {}
+        jobs = {}
+        with ThreadPoolExecutor(max_workers=2) as pool:
+            for j, (varied, value, opts, k) in enumerate(points):
+                same_options = varied == "kit types" or (abs(value - t_program) < 1e-12 and uniform)
+                if k == k_program and same_options and solved is not None and scheme in solved:
+                    results[j] = solved[scheme]
+                else:
+                    jobs[j] = pool.submit(solve, opts[opts.scheme == scheme], k)
+            for j, f in jobs.items():
+                results[j] = f.result()
+        for j, (varied, value, opts, k) in enumerate(points):
             o = opts[opts.scheme == scheme]
-            res = optimise_catalogue(o[["unit_id", "kit_id", "cost_usd"]], scheme_units, max_types=k,
-                                     cost_per_type_usd=c["cost_per_kit_type_usd"], solver=c["solver"],
-                                     time_limit_s=limit)
+            res = results[j]
             chosen = o.merge(res.assignment[res.assignment != ""].rename("kit_id").reset_index(),
                              on=["unit_id", "kit_id"])
             rows.append({
@@ -552,7 +576,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     sun = pd.Series(rule_of_thumb.design_month_sun_hours(weather.poa_wm2), index=weather.info.site_id.to_numpy())
     comparisons = compare(ev, options, units, catalogues, cfg,
                           thumb=rule_of_thumb.choose(ev, units, kits, sun) if len(ev) else None)
-    curves = cost_curves(ev, units, cfg)
+    curves = cost_curves(ev, units, cfg, solved=catalogues)
     timings["catalogue"] = time.perf_counter() - t
     for scheme, res in catalogues.items():
         if res.gap > 0.01:
