@@ -44,6 +44,32 @@ exit status: 0 done, 2 bad input (all problems listed), 1 unexpected failure.
 """
 
 
+def _read_inputs(args, problems: list) -> dict:
+    """Read the site table, component library, program file, survey profiles and the sites'
+    weather files named on the command line; every problem is appended to ``problems``."""
+    from .components import read_library
+    from .config import load_config
+    from .errors import InputError
+    from .profiles import read_tier_profiles
+    from .sites import read_sites
+    from .weather_files import read_site_weather_sources
+    loaded = {}
+    for name, fn, arg in (("sites", read_sites, args.sites), ("components", read_library, args.components),
+                          ("config", load_config, args.config),
+                          ("profiles", read_tier_profiles if args.tier_profiles else (lambda a: None), args.tier_profiles)):
+        try:
+            loaded[name] = fn(arg)
+        except InputError as exc:
+            problems += exc.problems
+    if "sites" in loaded:
+        try:
+            loaded["weather_sources"] = read_site_weather_sources(loaded["sites"], Path(args.sites).parent,
+                                                                  label=str(args.sites))
+        except InputError as exc:
+            problems += exc.problems
+    return loaded
+
+
 class _Progress:
     """Stage messages and tqdm bars on stderr (silent with --quiet)."""
 
@@ -68,12 +94,9 @@ def _default_out(sites: Path) -> Path:
 
 
 def cmd_plan(args: argparse.Namespace) -> int:
-    from .components import read_library
-    from .config import load_config
     from .errors import InputError, Problem
     from .outputs import write_run
     from .plan import run_plan
-    from .sites import read_sites
 
     started = time.perf_counter()
     progress = _Progress(args.quiet)
@@ -81,22 +104,7 @@ def cmd_plan(args: argparse.Namespace) -> int:
     problems = []
     if out.exists() and (not out.is_dir() or any(out.iterdir())) and not args.overwrite:
         problems.append(Problem(str(out), None, None, "already holds a run; choose another --out or pass --overwrite"))
-    loaded = {}
-    from .profiles import read_tier_profiles
-    for name, fn, arg in (("sites", read_sites, args.sites), ("components", read_library, args.components),
-                          ("config", load_config, args.config),
-                          ("profiles", read_tier_profiles if args.tier_profiles else (lambda a: None), args.tier_profiles)):
-        try:
-            loaded[name] = fn(arg)
-        except InputError as exc:
-            problems += exc.problems
-    from .weather_files import read_site_weather_sources
-    if "sites" in loaded:
-        try:
-            loaded["weather_sources"] = read_site_weather_sources(loaded["sites"], Path(args.sites).parent,
-                                                                  label=str(args.sites))
-        except InputError as exc:
-            problems += exc.problems
+    loaded = _read_inputs(args, problems)
     if args.monthly_resource and "sites" in loaded:
         from .errors import Problem
         from .weather_files import read_monthly_table
@@ -257,13 +265,8 @@ def _write_csv_atomically(table, path: Path) -> None:
 
 
 def cmd_evaluate(args: argparse.Namespace) -> int:
-    from .components import read_library
-    from .config import load_config
     from .errors import InputError, Problem
     from .evaluate import KitChoiceError, candidate_kit_table, evaluate_kit
-    from .profiles import read_tier_profiles
-    from .sites import read_sites
-    from .weather_files import read_site_weather_sources
 
     progress = _Progress(args.quiet)
     problems, loaded = [], {}
@@ -281,19 +284,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
             problems.append(Problem(str(csv), None, None, "is a folder; give a file name for --csv"))
         elif not csv.parent.is_dir():
             problems.append(Problem(str(csv), None, None, f"folder '{csv.parent}' does not exist"))
-    for name, fn, arg in (("sites", read_sites, args.sites), ("components", read_library, args.components),
-                          ("config", load_config, args.config),
-                          ("profiles", read_tier_profiles if args.tier_profiles else (lambda a: None), args.tier_profiles)):
-        try:
-            loaded[name] = fn(arg)
-        except InputError as exc:
-            problems += exc.problems
-    if "sites" in loaded:
-        try:
-            loaded["weather_sources"] = read_site_weather_sources(loaded["sites"], Path(args.sites).parent,
-                                                                  label=str(args.sites))
-        except InputError as exc:
-            problems += exc.problems
+    loaded.update(_read_inputs(args, problems))
     if problems:
         raise InputError(problems)
     sites, library, cfg = loaded["sites"], loaded["components"], loaded["config"]
