@@ -17,15 +17,13 @@ from __future__ import annotations
 
 import numpy as np
 
-#: Per chemistry: mean battery voltage while charging relative to nominal (an
-#: array on a PWM/series/shunt controller works at this voltage), the state of
-#: charge where charge acceptance starts to fall (absorption), and the
-#: acceptance left at full charge as a fraction of the bulk limit.
-#: Lead-acid: bulk ~13.2 V, absorption from ~85 % SOC at 14.4 V on a 12 V battery
-#: (common practice); LiFePO4: ~13.4 V on 12.8 V, flat until ~95 % (common practice).
+#: Per chemistry: mean battery voltage while charging relative to nominal, the
+#: reference voltage of the array tables of PWM/series/shunt controllers (the
+#: array current barely changes over the battery's charging range).
+#: Lead-acid: bulk ~13.2 V on a 12 V battery; LiFePO4: ~13.4 V on 12.8 V (common practice).
 CHEMISTRY = {
-    "lead_acid": {"charge_voltage_ratio": 13.2 / 12.0, "taper_start_soc": 0.85, "acceptance_at_full": 0.05},
-    "lifepo4": {"charge_voltage_ratio": 13.4 / 12.8, "taper_start_soc": 0.95, "acceptance_at_full": 0.10},
+    "lead_acid": {"charge_voltage_ratio": 13.2 / 12.0},
+    "lifepo4": {"charge_voltage_ratio": 13.4 / 12.8},
 }
 
 DOD_POINTS = np.array([0.2, 0.5, 0.8])

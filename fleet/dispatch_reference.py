@@ -968,26 +968,7 @@ def trace_reference(pv_string_w, general_w, critical_w, unit_params, scale, para
     """Hour-by-hour flows of one kit over one weather year (the reference of
     :func:`fleet.dispatch.simulate_trace`).
 
-    Parameters
-    ----------
-    pv_string_w : array (8760,)
-        Per-string array power at the kit's operating point, W (hourly mean;
-        :func:`fleet.iv.array_power_per_string`). Used at float32 precision, like the kernel.
-    general_w, critical_w : arrays (8760,)
-        General and critical load of the unit, W (``critical_w`` may be None: none).
-        Float32 precision.
-    unit_params : sequence of 3 floats
-        Deferrable need per day (Wh), pump power (W), SOC separation of general-load
-        shedding above the disconnect (0: shed at the disconnect).
-    scale : float
-        Identical blocks sharing the unit's loads (loads and the deferrable need are
-        divided by it).
-    params_row : array (N_PARAMS,)
-        The kit's :data:`~fleet.dispatch.KIT_PARAMS`.
-    battery_temp_c : float
-        Battery temperature, degC.
-    vtables : array (n_chemistries, 4, 21), optional
-        :func:`fleet.battery.voltage_tables` (the default).
+    The parameters are those of :func:`simulate_year_reference`.
 
     Returns
     -------
@@ -997,7 +978,7 @@ def trace_reference(pv_string_w, general_w, critical_w, unit_params, scale, para
     ``connected`` and ``critical_connected`` (at the hour's start) and ``regulating``; the
     stage code for ``charge_stage`` (end of hour: 0 bulk, 1 absorption, 2 float, 3 array
     opened or shorted). ``load_w`` and ``served_w`` include the critical load,
-    ``deferrable_from_pv_w`` is at the DC bus. Also ``initial_soc`` (after the warm-up) and
+    ``deferrable_from_pv_w`` is at the load, like ``deferrable_served_w``. Also ``initial_soc`` (after the warm-up) and
     ``setpoints`` (:class:`SetPoints`).
     """
     y = _year(pv_string_w, general_w, critical_w, unit_params, scale, params_row, battery_temp_c, vtables)

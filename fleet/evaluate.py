@@ -28,9 +28,9 @@ from .components import ComponentLibrary
 from .config import ProgramConfig
 from .dispatch import METRICS
 from .iv import tables_for_kits
-from .kits import DesignConditions, candidate_kits, kernel_parameters
-from .plan import (_Quiet, array_losses, battery_temperature_c, build_demand, build_weather, evaluate, shortfall,
-                   simulate_chunked, unit_parameters)
+from .kits import candidate_kits, kernel_parameters
+from .plan import (_Quiet, array_losses, battery_temperature_c, build_demand, build_weather, design_conditions,
+                   evaluate, shortfall, simulate_chunked, unit_parameters)
 from .resource import MeasuredYear
 
 #: Largest block count tried per minigrid village when none is given.
@@ -123,21 +123,6 @@ class KitChoiceError(ValueError):
         super().__init__(message)
         self.close_matches = close_matches or []
         self.option = option  # the argument at fault: "kit_id" or "blocks"
-
-
-def design_conditions(sites, cfg: ProgramConfig, weather_info: pd.DataFrame | None = None) -> DesignConditions:
-    """Temperatures the kits' electrical checks use, as :func:`fleet.plan.run_plan` sets them:
-    the coldest site design minimum (a measured year's coldest hour where the site gives none;
-    the program default where any site gives none) and the program's hot cell temperature."""
-    mins = sites["design_temp_min_c"].to_numpy(dtype=float).copy()
-    if weather_info is not None and len(weather_info):
-        from_data = weather_info.temp_air_min_c.to_numpy(dtype=float)
-        measured = (weather_info.weather_source_kind == "measured").to_numpy()
-        mins = np.where(~np.isfinite(mins) & measured, from_data, mins)
-    cold = float(np.nanmin(mins)) if np.isfinite(mins).any() else cfg["temperature"]["default_min_c"]
-    if not np.isfinite(mins).all():
-        cold = min(cold, cfg["temperature"]["default_min_c"])
-    return DesignConditions(cold_ambient_c=cold, hot_cell_c=cfg["system"]["design_cell_temp_hot_c"])
 
 
 def _needs_weather_for_kits(sites, weather_sources) -> bool:

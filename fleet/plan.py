@@ -272,8 +272,11 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     needed = required_tier(units, sites)[pairs.unit_idx.to_numpy()] if sites is not None else np.zeros(len(u), int)
     temp_batt = (battery_temperature_c(sites, cfg, weather_info)[pairs.site_idx.to_numpy()]
                  if sites is not None else np.full(len(pairs), 25.0))
-    calendar = np.array([float(battery.calendar_life_at(c, t, chem)) for c, t, chem in
-                         zip(k.calendar_life_years.to_numpy(), temp_batt, k.chemistry.to_numpy())])
+    chem = k.chemistry.to_numpy()
+    calendar = np.zeros(len(k))
+    for name in np.unique(chem):
+        rows = chem == name
+        calendar[rows] = battery.calendar_life_at(k.calendar_life_years.to_numpy()[rows], temp_batt[rows], name)
     life = battery.life_from_damage(m["cycle_damage"].mean(axis=1), calendar)
     e = cfg["economics"]
     p = cfg["program"]
@@ -489,6 +492,21 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
     return pd.DataFrame(rows)
 
 
+def design_conditions(sites, cfg: ProgramConfig, weather_info: pd.DataFrame | None = None) -> DesignConditions:
+    """Temperatures the kits' electrical checks use: the coldest site design minimum (a
+    measured year's coldest hour where the site gives none; the program default where any
+    site has neither) and the program's hot cell temperature."""
+    mins = sites["design_temp_min_c"].to_numpy(dtype=float).copy()
+    if weather_info is not None and len(weather_info):
+        from_data = weather_info.temp_air_min_c.to_numpy(dtype=float)
+        measured = (weather_info.weather_source_kind == "measured").to_numpy()
+        mins = np.where(~np.isfinite(mins) & measured, from_data, mins)
+    cold = float(np.nanmin(mins)) if np.isfinite(mins).any() else cfg["temperature"]["default_min_c"]
+    if not np.isfinite(mins).all():
+        cold = min(cold, cfg["temperature"]["default_min_c"])
+    return DesignConditions(cold_ambient_c=cold, hot_cell_c=cfg["system"]["design_cell_temp_hot_c"])
+
+
 def build_demand(sites, cfg: ProgramConfig, tier_profiles: dict | None = None):
     """Service units of every site with their design demand columns, and their hourly loads
     (:class:`fleet.demand.UnitDemand`) on each site's local clock."""
@@ -536,16 +554,8 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     t = time.perf_counter()
     tracker.stage("kits")
-    mins = sites["design_temp_min_c"].to_numpy(dtype=float).copy()
-    # a measured year's coldest hour stands in where the site gives no design minimum
-    from_data = weather.info.temp_air_min_c.to_numpy(dtype=float)
-    measured_site = (weather.info.weather_source_kind == "measured").to_numpy()
-    mins = np.where(~np.isfinite(mins) & measured_site, from_data, mins)
-    cold = float(np.nanmin(mins)) if np.isfinite(mins).any() else cfg["temperature"]["default_min_c"]
-    if not np.isfinite(mins).all():
-        cold = min(cold, cfg["temperature"]["default_min_c"])
     s = cfg["system"]
-    cond = DesignConditions(cold_ambient_c=cold, hot_cell_c=s["design_cell_temp_hot_c"])
+    cond = design_conditions(sites, cfg, weather.info)
     kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
     tables = tables_for_kits(kits, library)
     params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
