@@ -44,14 +44,18 @@ FUSE_RATINGS_A = np.array([1, 3, 6, 10, 15, 20, 25, 30, 35, 40, 45, 50, 60, 70, 
 NEC_CONTINUOUS_FACTOR = 1.25
 
 
-def resistance_ohm_per_km(section_mm2, temp_c=20.0, conductor_class: str = "class5"):
-    """Conductor resistance at ``temp_c``, ohm/km, for standard cross-sections [1]_, [2]_."""
-    table = RESISTANCE_20C_OHM_PER_KM[conductor_class]
+def _section_index(section_mm2) -> np.ndarray:
     sec = np.asarray(section_mm2, dtype=float)
     idx = np.searchsorted(SECTIONS_MM2, sec)
     if np.any(idx >= SECTIONS_MM2.size) or np.any(SECTIONS_MM2[np.minimum(idx, SECTIONS_MM2.size - 1)] != sec):
         raise ValueError(f"not a standard cross-section: {section_mm2} (one of {SECTIONS_MM2.tolist()} mm2)")
-    return table[idx] * (1.0 + COPPER_ALPHA_PER_K * (np.asarray(temp_c, float) - 20.0))
+    return idx
+
+
+def resistance_ohm_per_km(section_mm2, temp_c=20.0, conductor_class: str = "class5"):
+    """Conductor resistance at ``temp_c``, ohm/km, for standard cross-sections [1]_, [2]_."""
+    table = RESISTANCE_20C_OHM_PER_KM[conductor_class]
+    return table[_section_index(section_mm2)] * (1.0 + COPPER_ALPHA_PER_K * (np.asarray(temp_c, float) - 20.0))
 
 
 def voltage_drop_v(current_a, one_way_m, section_mm2, temp_c=20.0, conductor_class: str = "class5"):
@@ -61,25 +65,39 @@ def voltage_drop_v(current_a, one_way_m, section_mm2, temp_c=20.0, conductor_cla
 
 
 def smallest_section_mm2(current_a: float, one_way_m: float, system_v: float, max_drop_fraction: float = 0.03,
-                         temp_c: float = 50.0, conductor_class: str = "class5") -> float:
+                         temp_c: float = 50.0, conductor_class: str = "class5", *,
+                         available_mm2=None, min_ampacity_a: float = 0.0) -> float:
     """Smallest standard cross-section carrying 125 % of ``current_a`` continuously (NEC
     690.8(B)) with a voltage drop of at most ``max_drop_fraction`` of ``system_v`` at the
     conductor temperature ``temp_c``; NaN if even the largest section does not do.
 
+    ``available_mm2`` limits the choice to the sections a library stocks (default: every
+    section in :data:`SECTIONS_MM2`); ``min_ampacity_a`` asks for at least that ampacity, e.g.
+    the rating of the fuse that protects the conductor (NEC 240.4).
+
     The 3 % default is the usual design limit for stand-alone DC circuits (# common practice).
     """
-    need_a = NEC_CONTINUOUS_FACTOR * current_a
+    need_a = max(NEC_CONTINUOUS_FACTOR * current_a, float(min_ampacity_a))
     drop = voltage_drop_v(current_a, one_way_m, SECTIONS_MM2, temp_c, conductor_class)
     ok = (AMPACITY_A >= need_a) & (drop <= max_drop_fraction * system_v)
+    if available_mm2 is not None:
+        ok &= np.isin(SECTIONS_MM2, np.asarray(available_mm2, float))
     return float(SECTIONS_MM2[np.argmax(ok)]) if ok.any() else float("nan")
 
 
-def fuse_rating_a(current_a: float) -> float:
-    """Smallest standard fuse rating at or above 125 % of the continuous current (NEC 690.9(B),
-    240.6(A)); NaN above the largest listed rating."""
+def ampacity_a(section_mm2) -> np.ndarray:
+    """Continuous current (A) of standard cross-sections, from :data:`AMPACITY_A`."""
+    return AMPACITY_A[_section_index(section_mm2)]
+
+
+def fuse_rating_a(current_a: float, ratings_a=None) -> float:
+    """Smallest fuse rating at or above 125 % of the continuous current (NEC 690.9(B));
+    from the standard ratings of NEC 240.6(A) unless ``ratings_a`` (those a library stocks)
+    is given; NaN above the largest rating."""
+    ratings = FUSE_RATINGS_A if ratings_a is None else np.sort(np.asarray(ratings_a, float))
     need = NEC_CONTINUOUS_FACTOR * float(current_a)
-    ok = FUSE_RATINGS_A >= need - 1e-9
-    return float(FUSE_RATINGS_A[np.argmax(ok)]) if ok.any() else float("nan")
+    ok = ratings >= need - 1e-9
+    return float(ratings[np.argmax(ok)]) if ok.any() else float("nan")
 
 
 def string_fuses_needed(strings_in_parallel: int) -> bool:

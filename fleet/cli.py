@@ -128,8 +128,12 @@ def cmd_plan(args: argparse.Namespace) -> int:
     from .config import default_config_path
     from .outputs import plan_tables
     tables = plan_tables(result)
-    paths = write_run(result, out, tables=tables, inputs={"sites": args.sites, "components": args.components or default_library_path(),
-                                           "config": args.config or default_config_path()},
+    from .config import depots_path
+    inputs = {"sites": args.sites, "components": args.components or default_library_path(),
+              "config": args.config or default_config_path()}
+    if depots_path(result.config) is not None:
+        inputs["depots"] = depots_path(result.config)
+    paths = write_run(result, out, tables=tables, inputs=inputs,
                       overwrite=args.overwrite, started=started)
     _print_summary(result, tables, paths, time.perf_counter() - started)
     return 0

@@ -1,9 +1,16 @@
 """Component library: PV modules, batteries, charge controllers, inverters,
-balance of system and installation costs.
+balance of system, installation costs and, optionally, cables and fuses.
 
 A library is a folder of CSV files or one XLSX workbook with a sheet per kind,
 named as in :data:`KINDS`. Every numeric field is checked; all problems are
 reported together, naming file (or sheet), row and column.
+
+The ``cables`` (price per metre by copper cross-section) and ``fuses`` (fuses
+and DC breakers by rating) tables are optional (:data:`OPTIONAL_KINDS`): with
+them, each kit's bill of materials prices the cables and fuses sized for it
+(:func:`fleet.kits.wiring`); without them, the library's balance-of-system
+lines are its only cable and fuse cost, and :attr:`ComponentLibrary.notes`
+says so.
 """
 
 from __future__ import annotations
@@ -14,6 +21,7 @@ from pathlib import Path
 
 import pandas as pd
 
+from .cables import SECTIONS_MM2
 from .errors import InputError, Problem
 
 _TEXT = "text"
@@ -63,6 +71,30 @@ KINDS: dict[str, dict[str, tuple[str, float | None, float | None]]] = {
         "scheme": (_TEXT, None, None), "item": (_TEXT, None, None), "basis": (_TEXT, None, None),
         "cost_usd": (_NUM, 0, None), "description": (_TEXT, None, None),
     },
+    # single-core copper cable priced per metre of one conductor; a section must be an
+    # IEC 60228 size that fleet.cables knows
+    "cables": {
+        "cable_id": (_TEXT, None, None), "description": (_TEXT, None, None),
+        "section_mm2": (_NUM, 0.5, 1000), "price_usd_per_m": (_NUM, 0, None),
+    },
+    # a fuse with its holder, or a DC breaker; application: in a PV string, or at the battery
+    "fuses": {
+        "fuse_id": (_TEXT, None, None), "description": (_TEXT, None, None),
+        "application": (_TEXT, None, None), "rating_a": (_NUM, 0.5, 5000),
+        "max_voltage_v_dc": (_NUM, 1, 2000), "price_usd": (_NUM, 0, None),
+    },
+}
+
+#: Kinds a library may leave out, and what is used instead.
+OPTIONAL_KINDS = {
+    "cables": "cables are not priced by cross-section: the balance-of-system lines are the only cable cost",
+    "fuses": "fuses and breakers are not priced by rating: the balance-of-system lines are the only fuse cost",
+}
+
+#: Columns a table may leave out (or leave blank), with the value used instead and why.
+#: An inverter's surge (a few seconds) rating at twice its continuous rating is common practice.
+OPTIONAL_COLUMNS = {
+    ("inverters", "surge_power_w"): (lambda df: 2.0 * df["rated_power_w"], "2 x rated_power_w (common practice)"),
 }
 
 _CHOICES = {
@@ -73,12 +105,17 @@ _CHOICES = {
     ("balance_of_system", "basis"): ("per_kit", "per_module", "per_block", "per_battery"),
     ("installation", "scheme"): ("shs", "minigrid"),
     ("installation", "basis"): ("per_kit", "per_block"),
+    ("fuses", "application"): ("pv_string", "battery"),
 }
 
 
 @dataclass(frozen=True)
 class ComponentLibrary:
-    """The component tables, each indexed by its id column (installation: plain index)."""
+    """The component tables, each indexed by its id column (installation: plain index).
+
+    ``cables`` and ``fuses`` are None when the library has no such table; ``notes`` tells
+    what was assumed in their place and where defaults filled optional columns.
+    """
 
     pv_modules: pd.DataFrame
     batteries: pd.DataFrame
@@ -87,6 +124,9 @@ class ComponentLibrary:
     balance_of_system: pd.DataFrame
     installation: pd.DataFrame
     source: str
+    cables: pd.DataFrame | None = None
+    fuses: pd.DataFrame | None = None
+    notes: tuple[str, ...] = ()
 
     def price_of(self, kind: str, component_id: str) -> float:
         return float(getattr(self, kind).loc[component_id, "price_usd"])
@@ -103,7 +143,12 @@ def validate_table(df: pd.DataFrame, kind: str, label: str) -> tuple[pd.DataFram
     problems: list[Problem] = []
     df = df.copy()
     df.columns = [str(c).strip().lower() for c in df.columns]
-    missing = [c for c in spec if c not in df.columns]
+    optional = {c: default for (k, c), (default, _) in OPTIONAL_COLUMNS.items() if k == kind}
+    missing = [c for c in spec if c not in df.columns and c not in optional]
+    for c in optional:
+        if c not in df.columns:
+            df[c] = pd.NA
+    blanks = {c: df[c].isna() for c in optional}
     for c in missing:
         problems.append(Problem(label, None, c, "required column is missing"))
     if df.empty:
@@ -113,7 +158,8 @@ def validate_table(df: pd.DataFrame, kind: str, label: str) -> tuple[pd.DataFram
             continue
         if typ == _NUM:
             num = pd.to_numeric(df[col], errors="coerce")
-            for i in df.index[num.isna()]:
+            blank = blanks.get(col, pd.Series(False, index=df.index))
+            for i in df.index[num.isna() & ~blank]:
                 problems.append(Problem(label, int(i) + 2, col, f"expected a number, got {df.at[i, col]!r}"))
             bad = num.notna() & (((num < lo) if lo is not None else False) | ((num > hi) if hi is not None else False))
             for i in df.index[bad]:
@@ -140,10 +186,45 @@ def validate_table(df: pd.DataFrame, kind: str, label: str) -> tuple[pd.DataFram
                 assert volts and all(v in (12, 24, 48) for v in volts)
             except (ValueError, AssertionError):
                 problems.append(Problem(label, int(i) + 2, "battery_voltages_v", f"expected e.g. '12;24', got {text!r}"))
+    for col, default in optional.items():
+        if not missing:  # the default may read other columns
+            df[col] = df[col].where(~blanks[col], default(df))
+    problems += _table_rules(df, kind, label, missing)
     if kind != "installation" and not problems:
         df = df.set_index(id_col, drop=False)
         df.index.name = None
     return df, problems
+
+
+def _table_rules(df: pd.DataFrame, kind: str, label: str, missing: list[str]) -> list[Problem]:
+    """Checks across columns, or against fleet's own tables."""
+    problems: list[Problem] = []
+    if kind == "cables" and "section_mm2" not in missing:
+        for i in df.index[df["section_mm2"].notna() & ~df["section_mm2"].isin(SECTIONS_MM2)]:
+            problems.append(Problem(label, int(i) + 2, "section_mm2",
+                                    f"{df.at[i, 'section_mm2']:g} mm2 is not a standard cross-section "
+                                    f"(IEC 60228: {', '.join(f'{v:g}' for v in SECTIONS_MM2)})"))
+    if kind == "inverters" and not {"surge_power_w", "rated_power_w"} & set(missing):
+        low = df["surge_power_w"] < df["rated_power_w"]
+        for i in df.index[low.fillna(False).astype(bool)]:
+            problems.append(Problem(label, int(i) + 2, "surge_power_w",
+                                    f"{df.at[i, 'surge_power_w']:g} W is below the continuous rating "
+                                    f"{df.at[i, 'rated_power_w']:g} W"))
+    return problems
+
+
+def _defaulted(raw: pd.DataFrame, kind: str) -> list[str]:
+    """Notes on optional columns of a raw table that were missing or had blank cells."""
+    notes = []
+    cols = {str(c).strip().lower(): c for c in raw.columns}
+    for (k, col), (_, what) in OPTIONAL_COLUMNS.items():
+        if k != kind:
+            continue
+        if col not in cols:
+            notes.append(f"no '{col}' column; taken as {what}")
+        elif raw[cols[col]].isna().any():
+            notes.append(f"'{col}' blank in {int(raw[cols[col]].isna().sum())} row(s); taken as {what}")
+    return notes
 
 
 def read_library(path: str | Path | None = None) -> ComponentLibrary:
@@ -159,19 +240,24 @@ def read_library(path: str | Path | None = None) -> ComponentLibrary:
     label = str(path)
     problems: list[Problem] = []
     tables: dict[str, pd.DataFrame] = {}
+    notes: list[str] = []
     if path.is_dir():
         for kind in KINDS:
             f = path / f"{kind}.csv"
             if not f.exists():
-                problems.append(Problem(str(f), None, None, "file not found (every component kind needs one)"))
+                if kind in OPTIONAL_KINDS:
+                    notes.append(f"{f} not found: {OPTIONAL_KINDS[kind]}")
+                else:
+                    problems.append(Problem(str(f), None, None, "file not found (every component kind needs one)"))
                 continue
             try:
-                raw = pd.read_csv(f, dtype=str, keep_default_na=False)
+                raw = pd.read_csv(f, dtype=str, keep_default_na=False).replace("", pd.NA)
             except (pd.errors.EmptyDataError, pd.errors.ParserError, UnicodeDecodeError) as exc:
                 problems.append(Problem(str(f), None, None, f"cannot be read as CSV: {exc}"))
                 continue
-            tables[kind], p = validate_table(raw.replace("", pd.NA), kind, str(f))
+            tables[kind], p = validate_table(raw, kind, str(f))
             problems += p
+            notes += [f"{f}: {n}" for n in _defaulted(raw, kind)]
     elif path.suffix.lower() == ".xlsx" and path.exists():
         try:
             sheets = pd.read_excel(path, sheet_name=None, dtype=str)
@@ -179,12 +265,16 @@ def read_library(path: str | Path | None = None) -> ComponentLibrary:
             raise InputError([Problem(label, None, None, f"cannot be read as XLSX: {exc}")]) from None
         for kind in KINDS:
             if kind not in sheets:
-                problems.append(Problem(label, None, None, f"sheet '{kind}' is missing"))
+                if kind in OPTIONAL_KINDS:
+                    notes.append(f"{label}: no sheet '{kind}': {OPTIONAL_KINDS[kind]}")
+                else:
+                    problems.append(Problem(label, None, None, f"sheet '{kind}' is missing"))
                 continue
             tables[kind], p = validate_table(sheets[kind], kind, f"{label} [{kind}]")
             problems += p
+            notes += [f"{label} [{kind}]: {n}" for n in _defaulted(sheets[kind], kind)]
     else:
         raise InputError([Problem(label, None, None, "not a folder of CSV files or an .xlsx workbook")])
     if problems:
         raise InputError(problems)
-    return ComponentLibrary(**tables, source=label)
+    return ComponentLibrary(**tables, source=label, notes=tuple(notes))

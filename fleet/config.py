@@ -3,13 +3,19 @@
 A program file only needs the keys it changes: everything else comes from the
 bundled demo program (``fleet/data/demo_program.toml``). Unknown sections or
 keys are reported, because a misspelt key silently ignored is a wrong plan.
+
+The depots table named by ``transport.depots_file`` (a path relative to the
+program file that names it) is read with the program and kept in
+:attr:`ProgramConfig.depots`. It belongs to that file: a program file that
+names none does not inherit the bundled demo's depots, and gets no transport
+cost (which the plan states in its warnings).
 """
 
 from __future__ import annotations
 
 import copy
 import tomllib
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from importlib import resources
 from pathlib import Path
 from typing import Any
@@ -64,11 +70,21 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("economics", "om_fraction_per_year"): (float, 0.0, 0.5, "of capex per year"),
     ("economics", "controller_life_years"): (float, 1.0, 50.0, "years"),
     ("economics", "inverter_life_years"): (float, 1.0, 50.0, "years"),
+    ("economics", "array_life_years"): (float, 1.0, 100.0, "years"),
+    ("transport", "depots_file"): (str, None, None, "path, relative to the program file"),
+    ("transport", "road_factor"): (float, 1.0, 3.0, "road km per straight-line km"),
+    ("transport", "shs_usd_per_kit_km"): (float, 0.0, None, "USD per kit per road km"),
+    ("transport", "minigrid_usd_per_block_km"): (float, 0.0, None, "USD per plant block per road km"),
+    ("transport", "handling_usd_per_kit"): (float, 0.0, None, "USD per kit or plant block"),
+    ("transport", "battery_replacement_share"): (float, 0.0, 1.0, "share of a kit's delivery cost"),
 }
 
 ALLOWED_VOLTAGES_V = (12, 24, 48)
 #: keys that may be absent (absent tilt/azimuth: tilt = |latitude|, at least 10 deg, facing the equator)
-OPTIONAL_KEYS = {("pv", "tilt_deg"), ("pv", "azimuth_deg")}
+OPTIONAL_KEYS = {("pv", "tilt_deg"), ("pv", "azimuth_deg"), ("transport", "depots_file")}
+#: keys a program file does not inherit from the bundled demo program (they name demo files)
+NOT_INHERITED = {("transport", "depots_file")}
+NO_DEPOTS_NOTE = "no depots file (program [transport] depots_file): transport cost is zero."
 
 
 def _numbers(v, lo, hi):
@@ -93,10 +109,16 @@ def default_config_path() -> Path:
 
 @dataclass(frozen=True)
 class ProgramConfig:
-    """A validated program configuration: ``cfg["section"]["key"]`` access."""
+    """A validated program configuration: ``cfg["section"]["key"]`` access.
+
+    ``depots`` is the program's depots table (:func:`fleet.transport.read_depots`,
+    a GeoDataFrame) or None; ``depots_note`` says why there is none.
+    """
 
     values: dict[str, dict[str, Any]]
     source: str
+    depots: Any = field(default=None, compare=False, repr=False)
+    depots_note: str = NO_DEPOTS_NOTE
 
     def __getitem__(self, section: str) -> dict[str, Any]:
         return self.values[section]
@@ -106,7 +128,10 @@ class ProgramConfig:
         merged = copy.deepcopy(self.values)
         for section, keys in sections.items():
             merged.setdefault(section, {}).update(keys)
-        return validate_config(merged, self.source)
+        cfg = validate_config(merged, self.source)
+        if _depots_file(cfg) == _depots_file(self):
+            return replace(cfg, depots=self.depots, depots_note=self.depots_note)
+        return _with_depots(cfg, Path(self.source).parent, bundled=self.source == str(default_config_path()))
 
 
 def _read_toml(path: Path, label: str) -> dict[str, Any]:
@@ -164,6 +189,37 @@ def validate_config(raw: dict[str, Any], label: str) -> ProgramConfig:
     return ProgramConfig(out, label)
 
 
+def _depots_file(cfg: ProgramConfig) -> str:
+    return str(cfg.values.get("transport", {}).get("depots_file", "")).strip()
+
+
+def depots_path(cfg: ProgramConfig) -> Path | None:
+    """The depots file a program read (None when it has no depots table)."""
+    name = _depots_file(cfg)
+    if not name or cfg.depots is None:
+        return None
+    return Path(name) if Path(name).is_absolute() else Path(cfg.source).parent / name
+
+
+def _with_depots(cfg: ProgramConfig, folder: Path, bundled: bool) -> ProgramConfig:
+    """Read the depots table the program names (relative to ``folder``, the program
+    file's); a missing file is an input problem, except for the bundled demo program,
+    whose depots file may not be installed (then: no transport cost, stated)."""
+    name = _depots_file(cfg)
+    if not name:
+        return replace(cfg, depots=None, depots_note=NO_DEPOTS_NOTE)
+    path = Path(name) if Path(name).is_absolute() else folder / name
+    if not path.is_file():
+        if bundled:
+            return replace(cfg, depots=None, depots_note=f"the bundled demo program's depots file {path} is "
+                                                         "not installed: transport cost is zero.")
+        raise InputError([Problem(cfg.source, None, "transport.depots_file",
+                                  f"depots file not found: {path} (a relative path is taken from the "
+                                  "program file's folder)")])
+    from .transport import read_depots
+    return replace(cfg, depots=read_depots(path), depots_note="")
+
+
 def load_config(path: str | Path | None = None) -> ProgramConfig:
     """Read a program TOML file over the bundled defaults and validate it.
 
@@ -175,13 +231,16 @@ def load_config(path: str | Path | None = None) -> ProgramConfig:
     """
     base = _read_toml(default_config_path(), "bundled demo_program.toml")
     if path is None:
-        return validate_config(base, str(default_config_path()))
+        return _with_depots(validate_config(base, str(default_config_path())), default_config_path().parent,
+                            bundled=True)
     label = str(path)
     user = _read_toml(Path(path), label)
     merged = copy.deepcopy(base)
+    for section, key in NOT_INHERITED:
+        merged.get(section, {}).pop(key, None)
     for section, keys in user.items():
         if isinstance(keys, dict) and isinstance(merged.get(section), dict):
             merged[section].update(keys)
         else:
             merged[section] = keys
-    return validate_config(merged, label)
+    return _with_depots(validate_config(merged, label), Path(path).parent, bundled=False)

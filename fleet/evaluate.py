@@ -141,8 +141,12 @@ _CANDIDATES_KEPT = 4
 def _library_key(library: ComponentLibrary) -> str:
     """A digest of the library's tables (content, not identity: a re-read library matches)."""
     h = hashlib.sha256()
-    for name in ("pv_modules", "batteries", "charge_controllers", "inverters", "balance_of_system", "installation"):
-        df = getattr(library, name)
+    for name in ("pv_modules", "batteries", "charge_controllers", "inverters", "balance_of_system", "installation",
+                 "cables", "fuses"):
+        df = getattr(library, name, None)
+        if df is None:
+            h.update(repr((name, None)).encode())
+            continue
         h.update(repr((name, list(map(str, df.columns)))).encode())
         h.update(pd.util.hash_pandas_object(df.astype(str), index=True).to_numpy().tobytes())
     return h.hexdigest()

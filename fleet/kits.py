@@ -5,8 +5,11 @@ A kit (solar home system) serves one household or facility. A minigrid plant
 is a whole number of identical *blocks* (PV array on its MPPT controller,
 battery bank, inverter) in parallel on a common AC bus.
 
-Electrical rules (each a function below, cited):
+Electrical rules (each a function or constant below, cited). A combination that
+breaks one lands in the ``rejected`` table of :func:`candidate_kits` with the
+rule's key (:data:`REJECTION_RULES`) and a readable reason:
 
+* system voltage by array power (:func:`system_voltage_reason`, common practice);
 * string open-circuit voltage at the cold design temperature stays under the
   controller's PV input limit (NEC 690.7(A), temperature correction from the
   module's Voc coefficient);
@@ -18,11 +21,20 @@ Electrical rules (each a function below, cited):
 * PWM controller current >= 1.25 x array short-circuit current
   (NEC 690.8(A)(1)); MPPT output current rating >= array STC power / system
   voltage, with at most 20 % array oversizing (common practice);
-* battery strings in parallel limited (config; common practice for lead-acid).
+* battery strings in parallel limited (config; common practice for lead-acid);
+* an AC kit's inverter rated for the kit's design output (1.5 W per Wp for
+  household kits, 0.6-1.7 W per Wp for plant blocks; assumptions of ours);
+* every cable and fuse the kit needs exists in the library (:func:`wiring`).
+
+A unit's motor loads need starting (surge) power above their running power
+(:data:`SURGE_MULTIPLIER`, :func:`unit_surge_need_w`); :func:`surge_ok` tells
+which AC kits' inverters can start them.
 
 References
 ----------
-.. [1] NFPA 70, National Electrical Code (2023), Article 690.7 and 690.8.
+.. [1] NFPA 70, National Electrical Code (2023), Article 690.7, 690.8, 690.9,
+   240.4 and 240.6(A).
+.. [2] IEC 60228:2004, Conductors of insulated cables (via :mod:`fleet.cables`).
 """
 
 from __future__ import annotations
@@ -34,7 +46,8 @@ import numpy as np
 import pandas as pd
 
 from .battery import CHEMISTRY, CHEMISTRY_INDEX, VOLTAGE_MODEL, cells_in_series, cycle_life_fit, self_discharge_per_hour
-from .cables import fuse_rating_a, smallest_section_mm2, string_fuses_needed, voltage_drop_v
+from .cables import (SECTIONS_MM2, fuse_rating_a, smallest_section_mm2, string_fuses_needed,
+                     voltage_drop_v)
 from .components import ComponentLibrary
 
 ABSORPTION_V_PER_12V = {"lead_acid": 14.4, "lifepo4": 14.2}  # common practice
@@ -48,8 +61,39 @@ SHS_MAX_ARRAY_W = 2000.0
 # A household's appliances peak well above its array power: the inverter of an
 # AC kit is the smallest rated at >= 1.5 W per Wp (an assumption of ours).
 SHS_INVERTER_PER_WP = 1.5
+#: A plant block's inverter is rated between these multiples of its array power (W per Wp; an
+#: assumption of ours, the thinning keeps the one nearest 1).
+BLOCK_INVERTER_PER_WP = (0.6, 1.7)
 SHS_USABLE_WH_PER_WP = (1.2, 6.0)
 BLOCK_USABLE_WH_PER_WP = (1.5, 6.0)
+
+#: Array power (Wp, both ends included) each system voltage is used for. Higher power at a
+#: low voltage means battery-side currents past about 40 A at 12 V and 80 A at 24 V, with
+#: cables, fuses and controllers to match; small arrays at a high voltage need more modules in
+#: series and dearer parts than the load justifies. # common practice: stand-alone design
+#: handbooks (e.g. Sandia SAND87-7023, Stand-Alone Photovoltaic Systems: A Handbook of
+#: Recommended Design Practices) choose the system voltage from the power and current in this
+#: way (# from memory); the bands overlap where both voltages are common, and the catalogue
+#: picks by cost there.
+SYSTEM_VOLTAGE_BANDS_WP = {12: (0.0, 500.0), 24: (250.0, 2000.0), 48: (1000.0, math.inf)}
+
+#: Topology by array power for household kits: DC kits (loads on the controller's load output)
+#: up to 400 Wp, AC kits (inverter on the battery) from 300 Wp (# common practice: past a few
+#: hundred watts households run mains appliances; an assumption of ours).
+DC_MAX_ARRAY_W = 400.0
+AC_MIN_ARRAY_W = 300.0
+
+#: Keys of the rules that turn a combination down (``rule`` column of the rejected table).
+REJECTION_RULES = {
+    "system_voltage": "system voltage by array power",
+    "cold_voc": "string Voc at the cold design temperature over the controller's limit (NEC 690.7)",
+    "hot_vmp": "hot string Vmp too low to finish charging the battery",
+    "controller_current": "controller current rating (NEC 690.8(A) for PWM; MPPT output current)",
+    "battery_parallel": "too many battery strings in parallel",
+    "inverter_rating": "no inverter rated for the kit's design output",
+    "cable_section": "cable section beyond the largest available",
+    "fuse_rating": "no fuse or breaker of the rating and voltage needed",
+}
 
 
 @dataclass(frozen=True)
@@ -77,28 +121,331 @@ def battery_strings(system_v: int, battery_v: float) -> int | None:
     return n if n >= 1 and abs(n * battery_v - system_v) <= 0.1 * system_v else None
 
 
-def _controllers_for(lib: ComponentLibrary, kind_group: str, system_v: int) -> pd.DataFrame:
-    cc = lib.charge_controllers
-    ok = cc["battery_voltages_v"].map(lambda s: system_v in [int(v) for v in str(s).split(";") if v])
-    kinds = ["mppt"] if kind_group == "mppt" else ["pwm", "series", "shunt"]
-    return cc[ok & cc["kind"].isin(kinds)].sort_values("price_usd")
+def system_voltage_allowed(system_v, array_wp):
+    """Whether a system voltage (V) suits an array power (Wp), per
+    :data:`SYSTEM_VOLTAGE_BANDS_WP`; arrays broadcast. A voltage with no band is never allowed."""
+    v = np.asarray(system_v, float)
+    wp = np.asarray(array_wp, float)
+    lo = np.vectorize(lambda x: SYSTEM_VOLTAGE_BANDS_WP.get(int(x), (math.inf, -math.inf))[0], otypes=[float])(v)
+    hi = np.vectorize(lambda x: SYSTEM_VOLTAGE_BANDS_WP.get(int(x), (math.inf, -math.inf))[1], otypes=[float])(v)
+    return (wp >= lo) & (wp <= hi)
 
 
-def _array_ok(module: pd.Series, n_series: int, system_v: int, chemistry: str, kind_group: str,
-              cond: DesignConditions, max_pv_v: float) -> tuple[bool, str]:
+def system_voltage_reason(system_v: int, array_wp: float) -> str:
+    """Why ``system_v`` does not suit an array of ``array_wp`` (see :func:`system_voltage_allowed`),
+    naming the voltages that do; '' when it does."""
+    if bool(system_voltage_allowed(system_v, array_wp)):
+        return ""
+    fits = [v for v in SYSTEM_VOLTAGE_BANDS_WP if bool(system_voltage_allowed(v, array_wp))]
+    band = SYSTEM_VOLTAGE_BANDS_WP.get(int(system_v))
+    where = (f"{system_v} V is for {band[0]:.0f}-{band[1]:.0f} Wp" if band and math.isfinite(band[1])
+             else f"{system_v} V is for {band[0]:.0f} Wp and more" if band else f"{system_v} V has no power band")
+    return (f"{array_wp:.0f} Wp array at {system_v} V: {where} (system voltage by array power"
+            + (f"; use {' or '.join(str(v) for v in fits)} V" if fits else "") + ")")
+
+
+def string_voltage_check(module, n_series: int, system_v: int, chemistry: str, kind_group: str,
+                 cond: DesignConditions, max_pv_v: float) -> tuple[str, str]:
+    """('', '') when a string of ``n_series`` modules suits the controller and battery, else
+    (rule key, reason).
+
+    ``cold_voc``: the string's open-circuit voltage at ``cond.cold_ambient_c``, corrected with
+    the module's Voc temperature coefficient (NEC 690.7(A)(1)), exceeds ``max_pv_v`` (V).
+    ``hot_vmp``: its maximum-power voltage at ``cond.hot_cell_c`` falls below the absorption
+    voltage plus the controller's margin (:data:`PWM_DROP_MARGIN_V` per 12 V for a controller
+    that ties the array to the battery, ``kind_group`` 'pwm'; :data:`MPPT_HEADROOM_V` for MPPT).
+    """
     voc_cold = n_series * voc_at_temperature(module.voc_v, module.temp_coeff_voc_pct_per_k, cond.cold_ambient_c)
     if voc_cold > max_pv_v:
-        return False, f"string Voc {voc_cold:.1f} V at {cond.cold_ambient_c:.0f} degC exceeds controller limit {max_pv_v:.0f} V (NEC 690.7)"
+        return "cold_voc", (f"string Voc {voc_cold:.1f} V at {cond.cold_ambient_c:.0f} degC exceeds controller "
+                            f"limit {max_pv_v:.0f} V (NEC 690.7)")
     v_abs = ABSORPTION_V_PER_12V[chemistry] * system_v / 12.0
     vmp_hot = n_series * vmp_at_temperature(module.vmp_v, module.temp_coeff_voc_pct_per_k, cond.hot_cell_c)
     need = v_abs + (PWM_DROP_MARGIN_V * system_v / 12 if kind_group == "pwm" else MPPT_HEADROOM_V)
     if vmp_hot < need:
-        return False, f"hot string Vmp {vmp_hot:.1f} V below {need:.1f} V needed to finish charging"
-    return True, ""
+        return "hot_vmp", (f"hot string Vmp {vmp_hot:.1f} V at {cond.hot_cell_c:.0f} degC below {need:.1f} V "
+                           f"needed to finish charging")
+    return "", ""
 
 
-def _kit_row(scheme, topology, system_v, module, n_series, n_parallel, battery, b_series, b_parallel,
-             controller, n_controllers, inverter) -> dict:
+def controller_current_need_a(kind_group: str, module, n_parallel: int, array_wp: float, system_v: float) -> float:
+    """Current rating (A) a charge controller needs: 1.25 x the strings' short-circuit current
+    for a controller that ties the array to the battery (NEC 690.8(A)(1)); for an MPPT
+    controller its output current at the array's STC power and the system voltage, allowing
+    the array to be at most :data:`MPPT_OVERSIZE` times the controller (# common practice)."""
+    if kind_group == "pwm":
+        return NEC_690_8_FACTOR * float(module.isc_a) * n_parallel
+    return array_wp / system_v / MPPT_OVERSIZE
+
+
+def _controller_reason(kind_group: str, c, need_a: float) -> str:
+    if kind_group == "pwm":
+        return (f"controller {c.controller_id} {c.rated_current_a:.0f} A < {need_a:.1f} A = 1.25 x array Isc "
+                f"(NEC 690.8(A))")
+    return (f"controller {c.controller_id} {c.rated_current_a:.0f} A < {need_a:.1f} A = array Wp / system V / "
+            f"{MPPT_OVERSIZE:g} (MPPT output current, common practice)")
+
+
+# --------------------------------------------------------------------------------------------
+# Surge: motor loads start at several times their running power
+
+
+#: Starting power of a load as a multiple of its running power, by load kind, for the few
+#: seconds a motor takes to start (# common practice: a refrigerator or air-conditioner
+#: compressor starts at 3-5 x its running power, 4 is taken; pumps and other induction-motor
+#: appliances about 3 x; small fan motors about 2 x). Electronic and resistive loads: 1.
+SURGE_MULTIPLIER = {"resistive": 1.0, "electronic": 1.0, "fan": 2.0, "motor": 3.0, "pump": 3.0, "compressor": 4.0}
+
+#: Words in an appliance's name that tell its load kind (first match wins; other names count
+#: as resistive or electronic).
+LOAD_KIND_WORDS = (("refrigerator", "compressor"), ("freezer", "compressor"), ("air conditioner", "compressor"),
+                   ("pump", "pump"), ("washing machine", "motor"), ("mill", "motor"), ("fan", "fan"))
+
+
+def load_kind(name: str) -> str:
+    """Load kind of an appliance from its name (:data:`LOAD_KIND_WORDS`)."""
+    low = str(name).lower()
+    return next((kind for word, kind in LOAD_KIND_WORDS if word in low), "resistive")
+
+
+def surge_need_w(peak_w, motor_running_w, multiplier, motor_in_peak=True):
+    """Power (W) an output must deliver for a few seconds while the largest motor starts with
+    every other load on: the peak plus the motor's extra starting power, ``(multiplier - 1) x
+    running`` when the motor's running power is part of ``peak_w``, ``multiplier x running``
+    when it is not (e.g. a deferrable pump started on top of the peak). One motor starts at a
+    time (# common practice). Arrays broadcast."""
+    extra = np.asarray(multiplier, float) - np.where(motor_in_peak, 1.0, 0.0)
+    return np.asarray(peak_w, float) + extra * np.asarray(motor_running_w, float)
+
+
+def appliance_surge_extra_w(appliances) -> float:
+    """Largest extra starting power (W) of one appliance of a mix (dicts with ``name`` and
+    ``rated_w``, as :data:`fleet.demand.TIER_APPLIANCES`): (multiplier - 1) x rated power."""
+    extras = [(SURGE_MULTIPLIER[load_kind(a["name"])] - 1.0) * float(a["rated_w"]) for a in appliances]
+    return max(extras, default=0.0)
+
+
+def unit_surge_need_w(units: pd.DataFrame, design: pd.DataFrame, sites: pd.DataFrame) -> np.ndarray:
+    """Surge power (W) each service unit's supply must be able to start (:func:`surge_need_w`).
+
+    ``units`` from :func:`fleet.demand.service_units`, ``design`` the per-unit design figures
+    (``peak_power_w``, ``pump_w``) of :func:`fleet.demand.unit_loads`, ``sites`` the site table.
+    Households and facilities: their design appliance mix (:data:`fleet.demand.TIER_APPLIANCES`,
+    :data:`fleet.demand.FACILITY_APPLIANCES`; survey profiles are taken to hold the same
+    motors). Productive uses: the design peak already includes motor starting
+    (:data:`fleet.demand.PRODUCTIVE_KINDS`). A pump unit starts its pump
+    (:data:`SURGE_MULTIPLIER` ``pump``). A minigrid village: its peak plus the largest extra of
+    any member's motor or of the site's pump, which the village peak does not include.
+    """
+    from .demand import FACILITY_APPLIANCES, TIER_APPLIANCES
+    peak = design["peak_power_w"].to_numpy(float)
+    pump = design["pump_w"].to_numpy(float) if "pump_w" in design else np.zeros(len(units))
+    out = peak.copy()
+    pump_x = SURGE_MULTIPLIER["pump"]
+    for i, u in enumerate(units.itertuples(index=False)):
+        g = u.group
+        if g.startswith("t") and g[1:].isdigit():
+            out[i] = peak[i] + appliance_surge_extra_w(TIER_APPLIANCES[int(g[1:])])
+        elif g in FACILITY_APPLIANCES:
+            out[i] = peak[i] + appliance_surge_extra_w(FACILITY_APPLIANCES[g])
+        elif g == "pumping":
+            out[i] = float(surge_need_w(peak[i], pump[i], pump_x, motor_in_peak=True))
+        elif g == "village":
+            site = sites.iloc[u.site_index]
+            mix = [a for t in range(1, 6) if int(site.get(f"households_t{t}", 0) or 0) > 0 for a in TIER_APPLIANCES[t]]
+            for fac, col in (("health_post", "health_posts"), ("school", "schools")):
+                if int(site.get(col, 0) or 0) > 0:
+                    mix += FACILITY_APPLIANCES[fac]
+            out[i] = peak[i] + max(appliance_surge_extra_w(mix), pump_x * pump[i])
+    return out
+
+
+def surge_ok(kits: pd.DataFrame, surge_need, blocks=1) -> np.ndarray:
+    """Whether each kit can start each unit's motors: True for DC kits (their appliances have
+    electronic soft-start drives, # common practice), else ``blocks`` x the inverter's surge
+    rating (``inverter_surge_w``; blocks of a plant share a start) >= the need (W).
+
+    Returns shape (n_kits,) for a scalar need, (n_needs, n_kits) for a 1-D need."""
+    need = np.asarray(surge_need, float)
+    dc = (kits["topology"] != "ac").to_numpy()
+    cap = kits["inverter_surge_w"].to_numpy(float) * np.asarray(blocks, float)
+    if need.ndim == 0:
+        return dc | (cap >= need)
+    return dc[None, :] | (cap[None, :] >= need[:, None])
+
+
+# --------------------------------------------------------------------------------------------
+# Wiring: cable sections and fuses per circuit, priced from the library where it has them
+
+
+#: One-way cable runs assumed for sizing and pricing, m (# common practice for household kits
+#: and plant blocks; a site survey replaces them): PV array to controller, controller to
+#: battery, battery to inverter, controller load output to the household's DC distribution box.
+CABLE_RUNS_M = {"shs": {"pv": 10.0, "battery": 1.5, "inverter": 1.5, "load": 2.0},
+                "minigrid": {"pv": 30.0, "battery": 3.0, "inverter": 3.0, "load": 0.0}}
+MAX_DROP_FRACTION = 0.03
+#: Battery voltage the inverter's input current is taken at: 90 % of nominal (near its cut-off).
+INVERTER_INPUT_V_FRACTION = 0.9
+#: What each circuit is called in bill-of-materials lines.
+CIRCUITS = {"pv": "PV array to charge controller", "battery": "charge controller to battery",
+            "inverter": "battery to inverter", "load": "controller load output to DC distribution box"}
+
+
+@dataclass(frozen=True)
+class WiringStock:
+    """Cables and fuses a library stocks, digested for :func:`wiring`.
+
+    ``cables``: section (mm2) -> (cable_id, description, USD per metre), the cheapest per
+    section; None when the library has no cable table (every standard section, unpriced).
+    ``fuses``: application -> rows (fuse_id, description, rating A, max V DC, USD) sorted by
+    price; None when the library has no fuse table (NEC 240.6(A) standard ratings, unpriced).
+    """
+
+    cables: dict | None
+    fuses: dict | None
+
+    @classmethod
+    def of(cls, lib: ComponentLibrary) -> "WiringStock":
+        cables = fuses = None
+        if lib.cables is not None:
+            cables = {}
+            for r in lib.cables.sort_values("price_usd_per_m", kind="stable").itertuples(index=False):
+                cables.setdefault(float(r.section_mm2), (r.cable_id, r.description, float(r.price_usd_per_m)))
+        if lib.fuses is not None:
+            fuses = {"pv_string": [], "battery": []}
+            for r in lib.fuses.sort_values("price_usd", kind="stable").itertuples(index=False):
+                fuses[r.application].append((r.fuse_id, r.description, float(r.rating_a),
+                                             float(r.max_voltage_v_dc), float(r.price_usd)))
+        return cls(cables, fuses)
+
+    def sections_mm2(self):
+        return None if self.cables is None else sorted(self.cables)
+
+    def fuse(self, application: str, current_a: float, voltage_v: float) -> tuple[float, str]:
+        """(rating A, fuse_id) of the smallest stocked rating at or above 125 % of the current
+        (NEC 690.9(B)) rated for ``voltage_v`` DC, the cheapest at that rating; (NaN, '') if none."""
+        if self.fuses is None:
+            return fuse_rating_a(current_a), ""
+        rows = [r for r in self.fuses[application] if r[3] >= voltage_v - 1e-9]
+        rating = fuse_rating_a(current_a, [r[2] for r in rows])
+        return rating, next((r[0] for r in rows if r[2] == rating), "")
+
+
+def _circuit(name: str, current_a: float, run_m: float, circuit_v: float, stock: WiringStock,
+             fuse_a: float = 0.0) -> tuple[dict, list[tuple[str, str]]]:
+    """Columns of one circuit: design current, section, drop and cable id; a problem when no
+    stocked section carries it (ampacity >= 125 % of the current and >= its fuse, NEC 690.8(B)
+    and 240.4; drop <= 3 %)."""
+    sec = smallest_section_mm2(current_a, run_m, circuit_v, MAX_DROP_FRACTION,
+                               available_mm2=stock.sections_mm2(),
+                               min_ampacity_a=fuse_a if np.isfinite(fuse_a) else 0.0)
+    problems = []
+    if np.isfinite(sec):
+        drop = float(voltage_drop_v(current_a, run_m, sec, 50.0)) / circuit_v * 100.0
+        cable_id = stock.cables[sec][0] if stock.cables is not None else ""
+    else:
+        drop, cable_id = np.nan, ""
+        largest = max(stock.sections_mm2() or SECTIONS_MM2)
+        problems.append(("cable_section", f"{CIRCUITS[name]} cable: {current_a:.1f} A over {run_m:g} m at "
+                                          f"{circuit_v:.0f} V needs more than the largest available section "
+                                          f"{largest:g} mm2 (125 % ampacity, {MAX_DROP_FRACTION:.0%} drop)"))
+    return ({f"{name}_circuit_current_a": current_a, f"{name}_cable_mm2": sec, f"{name}_cable_drop_pct": drop,
+             f"{name}_cable_id": cable_id}, problems)
+
+
+def _no_circuit(name: str) -> dict:
+    return {f"{name}_circuit_current_a": np.nan, f"{name}_cable_mm2": np.nan, f"{name}_cable_drop_pct": np.nan,
+            f"{name}_cable_id": ""}
+
+
+def wiring(scheme: str, system_v: float, module, n_series: int, n_parallel: int, controller, inverter, *,
+           charge_v: float, string_voc_cold_v: float, stock: WiringStock | None = None
+           ) -> tuple[dict, list[tuple[str, str]]]:
+    """Cable cross-sections and fuse ratings of a kit (per controller), and what is missing.
+
+    * PV circuit: 125 % of the strings' short-circuit current (NEC 690.8(A)(1)), sized for 125 %
+      of that continuously (NEC 690.8(B)) and a drop of at most 3 % of the string's maximum-power
+      voltage over the assumed run (:data:`CABLE_RUNS_M`); a fuse per string from three strings
+      in parallel (NEC 690.9(A)) at the next rating above 125 % of the circuit current, rated for
+      the string's cold open-circuit voltage ``string_voc_cold_v`` (V).
+    * Battery circuit (controller to battery): the controller's rated current (or its load
+      output, if larger), sized the same way against the system voltage; a fuse at the battery
+      at the next rating above 125 % of it (NEC 690.9(B), 240.6(A)), rated for the charge
+      voltage ``charge_v`` (V); the cable also carries the fuse's rating (NEC 240.4).
+      Every fuse or breaker must be rated for the DC voltage of its circuit (NEC 690.9, # from
+      memory); an AC-rated device may not interrupt a DC arc.
+    * Inverter circuit (AC kits, battery to inverter): the inverter's input at rated power and
+      90 % of nominal voltage, with its own fuse at the battery, sized the same way.
+    * Load circuit (DC kits, controller load output to the DC distribution box): the load
+      output's rating, sized the same way; the controller's electronic overcurrent trip guards
+      it.
+
+    Conductor resistances per IEC 60228 class 5 copper at 50 degC (:mod:`fleet.cables`). With
+    a ``stock`` from a library's cable and fuse tables only stocked sections and fuses are used
+    and their ids returned (``*_cable_id``, ``*_fuse_id``); without, every standard size.
+
+    Returns
+    -------
+    columns : dict
+        ``{pv,battery,inverter,load}_circuit_current_a`` (A), ``..._cable_mm2``,
+        ``..._cable_drop_pct`` (%), ``..._cable_id``; ``string_fuse_a``, ``battery_fuse_a``,
+        ``inverter_fuse_a`` (A) and ``..._fuse_id``. NaN and '' where the kit has no such part.
+    problems : list of (rule, reason)
+        Parts the library cannot supply (rules ``cable_section``, ``fuse_rating``).
+    """
+    stock = stock or WiringStock(None, None)
+    runs = CABLE_RUNS_M[scheme]
+    out: dict = {}
+    problems: list[tuple[str, str]] = []
+
+    def fused(name, application, current_a, voltage_v, what):
+        rating, fid = stock.fuse(application, current_a, voltage_v)
+        out[f"{name}_fuse_a"], out[f"{name}_fuse_id"] = rating, fid
+        if not np.isfinite(rating):
+            problems.append(("fuse_rating", f"no {what} fuse of at least {NEC_690_8_FACTOR * current_a:.1f} A "
+                                            f"rated for {voltage_v:.0f} V DC in the library"))
+        return rating
+
+    i_pv = NEC_690_8_FACTOR * float(module.isc_a) * n_parallel
+    cols, p = _circuit("pv", i_pv, runs["pv"], float(module.vmp_v) * n_series, stock)
+    out.update(cols)
+    problems += p
+    if string_fuses_needed(n_parallel):
+        fused("string", "pv_string", NEC_690_8_FACTOR * float(module.isc_a), string_voc_cold_v, "PV string")
+    else:
+        out["string_fuse_a"], out["string_fuse_id"] = np.nan, ""
+
+    i_bat = max(float(controller.rated_current_a), float(controller.load_output_a) if inverter is None else 0.0)
+    f_bat = fused("battery", "battery", i_bat, charge_v, "battery")
+    cols, p = _circuit("battery", i_bat, runs["battery"], system_v, stock, f_bat)
+    out.update(cols)
+    problems += p
+
+    if inverter is not None:
+        i_inv = float(inverter.rated_power_w) / (float(inverter.efficiency) * INVERTER_INPUT_V_FRACTION * system_v)
+        f_inv = fused("inverter", "battery", i_inv, charge_v, "inverter circuit")
+        cols, p = _circuit("inverter", i_inv, runs["inverter"], system_v, stock, f_inv)
+        out.update(cols)
+        problems += p
+    else:
+        out.update(_no_circuit("inverter"))
+        out["inverter_fuse_a"], out["inverter_fuse_id"] = np.nan, ""
+
+    if inverter is None and float(controller.load_output_a) > 0 and runs["load"] > 0:
+        cols, p = _circuit("load", float(controller.load_output_a), runs["load"], system_v, stock)
+        out.update(cols)
+        problems += p
+    else:
+        out.update(_no_circuit("load"))
+    return out, problems
+
+
+# --------------------------------------------------------------------------------------------
+# Kit rows and their bill of materials
+
+
+def _kit_row(scheme, system_v, module, n_series, n_parallel, battery, b_series, b_parallel,
+             controller, n_controllers, inverter, wires: dict) -> dict:
     chem = battery.chemistry
     a, b = cycle_life_fit(battery.cycles_at_20pct_dod, battery.cycles_at_50pct_dod, battery.cycles_at_80pct_dod)
     n_mod = n_series * n_parallel * n_controllers
@@ -132,7 +479,9 @@ def _kit_row(scheme, topology, system_v, module, n_series, n_parallel, battery, 
         "battery_usable_wh": nominal_wh * battery.usable_dod, "battery_ah": bank_ah,
         "controller_id": controller.controller_id, "controller_kind": kind, "controllers": n_controllers,
         "inverter_id": inverter.inverter_id if inv else "", "max_load_w": max_load_w,
+        # output surge (a few seconds): the inverter's surge rating; a DC kit's load output has none
         "surge_w": float(inverter.surge_power_w) if inv else max_load_w,
+        "inverter_surge_w": float(inverter.surge_power_w) if inv else 0.0,
         # dispatch parameters (see kernel_parameters)
         "charge_voltage_v": v_charge,
         "controller_efficiency": float(controller.efficiency),
@@ -155,43 +504,7 @@ def _kit_row(scheme, topology, system_v, module, n_series, n_parallel, battery, 
                                                              float(inverter.no_load_w)) if inv else 0.0),
         "reverse_current_a": (0.0 if str(controller.blocks_reverse_current).strip().lower() == "yes"
                               else night_reverse_current_a(module, n_series, system_v, chem) * n_parallel * n_controllers),
-        **wiring(scheme, system_v, module, n_series, n_parallel, controller, inverter),
-    }
-
-
-#: One-way cable runs assumed for sizing, m (# common practice for household kits and plant blocks;
-#: a site survey replaces them).
-CABLE_RUNS_M = {"shs": {"pv": 10.0, "battery": 1.5}, "minigrid": {"pv": 30.0, "battery": 3.0}}
-MAX_DROP_FRACTION = 0.03
-
-
-def wiring(scheme: str, system_v: float, module, n_series: int, n_parallel: int, controller, inverter) -> dict:
-    """Cable cross-sections and fuse ratings of a kit (per controller).
-
-    * PV circuit: 125 % of the strings' short-circuit current (NEC 690.8(A)(1)), sized for 125 %
-      of that continuously (NEC 690.8(B)) and a drop of at most 3 % of the string's maximum-power
-      voltage over the assumed run; a fuse per string from three strings in parallel (NEC 690.9).
-    * Battery circuit: the larger of the controller's rated current and the inverter's input
-      current at rated power and 90 % of nominal voltage, sized the same way against the system
-      voltage; the battery fuse at the next standard rating above 125 % of it (NEC 240.6(A)).
-    Conductor resistances per IEC 60228 class 5 copper at 50 degC (:mod:`fleet.cables`).
-    """
-    runs = CABLE_RUNS_M[scheme]
-    i_pv = NEC_690_8_FACTOR * float(module.isc_a) * n_parallel
-    v_string = float(module.vmp_v) * n_series
-    pv_mm2 = smallest_section_mm2(i_pv, runs["pv"], v_string, MAX_DROP_FRACTION)
-    i_bat = float(controller.rated_current_a)
-    if inverter is not None:
-        i_bat = max(i_bat, float(inverter.rated_power_w) / (float(inverter.efficiency) * 0.9 * system_v))
-    bat_mm2 = smallest_section_mm2(i_bat, runs["battery"], system_v, MAX_DROP_FRACTION)
-    drop = (lambda i, run, sec, v: float(voltage_drop_v(i, run, sec, 50.0)) / v * 100.0 if np.isfinite(sec) else np.nan)
-    return {
-        "pv_circuit_current_a": i_pv, "pv_cable_mm2": pv_mm2,
-        "pv_cable_drop_pct": drop(i_pv, runs["pv"], pv_mm2, v_string),
-        "string_fuse_a": fuse_rating_a(NEC_690_8_FACTOR * float(module.isc_a)) if string_fuses_needed(n_parallel) else np.nan,
-        "battery_circuit_current_a": i_bat, "battery_cable_mm2": bat_mm2,
-        "battery_cable_drop_pct": drop(i_bat, runs["battery"], bat_mm2, system_v),
-        "battery_fuse_a": fuse_rating_a(i_bat),
+        **wires,
     }
 
 
@@ -212,7 +525,25 @@ def night_reverse_current_a(module, n_series: int, system_v: float, chemistry: s
     return dark_reverse_current(fit_module(module), v_batt / n_series, 20.0)
 
 
-def _bom(lib: ComponentLibrary, kit: dict) -> list[dict]:
+class _Parts:
+    """The library's rows as plain records by id (fast lookups while building many kits)."""
+
+    def __init__(self, lib: ComponentLibrary):
+        self.modules = {r.module_id: r for r in lib.pv_modules.itertuples(index=False)}
+        self.batteries = {r.battery_id: r for r in lib.batteries.itertuples(index=False)}
+        self.controllers = {r.controller_id: r for r in lib.charge_controllers.itertuples(index=False)}
+        self.inverters = {r.inverter_id: r for r in lib.inverters.itertuples(index=False)}
+        self.bos = list(lib.balance_of_system.itertuples(index=False))
+        self.installation = list(lib.installation.itertuples(index=False))
+        self.stock = WiringStock.of(lib)
+        self.cable = {} if lib.cables is None else {r.cable_id: r for r in lib.cables.itertuples(index=False)}
+        self.fuse = {} if lib.fuses is None else {r.fuse_id: r for r in lib.fuses.itertuples(index=False)}
+
+
+def _bom(parts: _Parts, kit: dict) -> list[dict]:
+    """Bill-of-materials lines of one kit: components, the cables (length x 2 conductors of the
+    section chosen per circuit) and fuses sized for it where the library prices them, the
+    balance of system and installation."""
     lines = []
 
     def add(kind, cid, desc, unit, qty, price):
@@ -221,139 +552,277 @@ def _bom(lib: ComponentLibrary, kit: dict) -> list[dict]:
                           "description": desc, "unit": unit, "quantity_per_kit": float(qty),
                           "unit_price_usd": float(price)})
 
-    m = lib.pv_modules.loc[kit["module_id"]]
+    m = parts.modules[kit["module_id"]]
     add("pv_module", m.module_id, m.description, "each", kit["modules"], m.price_usd)
-    b = lib.batteries.loc[kit["battery_id"]]
+    b = parts.batteries[kit["battery_id"]]
     add("battery", b.battery_id, b.description, "each", kit["batteries"], b.price_usd)
-    c = lib.charge_controllers.loc[kit["controller_id"]]
+    c = parts.controllers[kit["controller_id"]]
     add("charge_controller", c.controller_id, c.description, "each", kit["controllers"], c.price_usd)
     if kit["inverter_id"]:
-        i = lib.inverters.loc[kit["inverter_id"]]
+        i = parts.inverters[kit["inverter_id"]]
         add("inverter", i.inverter_id, i.description, "each", 1, i.price_usd)
+    runs = CABLE_RUNS_M[kit["scheme"]]
+    n_ctrl = kit["controllers"]
+    for name, per_kit in (("pv", n_ctrl), ("battery", n_ctrl), ("inverter", 1), ("load", n_ctrl)):
+        cid = kit.get(f"{name}_cable_id", "")
+        if cid:
+            cab = parts.cable[cid]
+            add("cable", cid, f"{CIRCUITS[name]}: 2 conductors x {runs[name]:g} m, {kit[f'{name}_cable_mm2']:g} mm2 "
+                              f"copper; {cab.description}", "m", 2.0 * runs[name] * per_kit, cab.price_usd_per_m)
+    for name, qty, where in (("string", kit["strings_in_parallel"], "one per PV string"),
+                             ("battery", n_ctrl, "at the battery, charge controller circuit"),
+                             ("inverter", 1, "at the battery, inverter circuit")):
+        fid = kit.get(f"{name}_fuse_id", "")
+        if fid:
+            f = parts.fuse[fid]
+            add("fuse", fid, f"{kit[f'{name}_fuse_a']:g} A, {where}; {f.description}", "each", qty, f.price_usd)
     per = {"per_kit": 1, "per_block": 1, "per_module": kit["modules"], "per_battery": kit["batteries"]}
-    for item in lib.balance_of_system.itertuples(index=False):
+    for item in parts.bos:
         if item.scheme in (kit["scheme"], "all"):
             add("balance_of_system", item.item_id, item.description, item.unit, item.quantity * per[item.basis], item.price_usd)
-    for item in lib.installation.itertuples(index=False):
+    for item in parts.installation:
         if item.scheme == kit["scheme"]:
             add("installation", item.item, item.description, "each", per[item.basis], item.cost_usd)
     return lines
 
 
-def _battery_options(lib, system_v, usable_range, array_wp, max_parallel):
-    for bat in lib.batteries.itertuples(index=False):
+def _battery_options(batteries, system_v, usable_range, array_wp, max_parallel):
+    """Battery banks whose usable energy is within ``usable_range`` Wh per Wp of the array:
+    (options [(battery, in series, strings)], rejections [(battery, reason)] for banks that
+    would need more strings in parallel than allowed)."""
+    options, rejections = [], []
+    lo, hi = usable_range[0] * array_wp, usable_range[1] * array_wp
+    for bat in batteries:
         bs = battery_strings(system_v, bat.nominal_voltage_v)
         if bs is None:
             continue
-        cap = LFP_MAX_PARALLEL_MODULES if bat.chemistry == "lifepo4" and bat.nominal_voltage_v > 40 else max_parallel
+        per_string = bs * bat.nominal_voltage_v * bat.capacity_ah * bat.usable_dod
+        lfp_rack = bat.chemistry == "lifepo4" and bat.nominal_voltage_v > 40
+        cap = LFP_MAX_PARALLEL_MODULES if lfp_rack else max_parallel
         for bp in range(1, cap + 1):
-            usable = bs * bp * bat.nominal_voltage_v * bat.capacity_ah * bat.usable_dod
-            if usable_range[0] * array_wp <= usable <= usable_range[1] * array_wp:
-                yield bat, bs, bp
+            if lo <= bp * per_string <= hi:
+                options.append((bat, bs, bp))
+        first_over = max(cap + 1, math.ceil(lo / per_string - 1e-9))
+        last = math.floor(hi / per_string + 1e-9)
+        if last >= first_over:
+            limit = ("rack modules with BMS communication, common practice" if lfp_rack
+                     else "system.max_parallel_battery_strings")
+            count = f"{first_over}-{last}" if last > first_over else f"{last}"
+            rejections.append((bat, f"{count} strings of {bs} x {bat.battery_id} in parallel would give "
+                                    f"{usable_range[0]:g}-{usable_range[1]:g} Wh usable per Wp; at most {cap} "
+                                    f"allowed ({limit})"))
+    return options, rejections
 
 
 def candidate_kits(lib: ComponentLibrary, *, voltages_v, max_parallel_strings: int,
                    cond: DesignConditions) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     """All electrically valid SHS kits and minigrid blocks from a library.
 
+    Household kits are 12 or 24 V, DC (loads on the controller's output, up to
+    :data:`DC_MAX_ARRAY_W`) or AC (inverter on the battery, from :data:`AC_MIN_ARRAY_W`);
+    plant blocks are 48 V; every kit's system voltage suits its array power
+    (:func:`system_voltage_reason`). Each kit's cables and fuses are sized (:func:`wiring`)
+    and, where the library has cable and fuse tables, priced in its bill of materials;
+    otherwise the library's balance-of-system lines stand for them
+    (:attr:`fleet.components.ComponentLibrary.notes` says which).
+
     Returns
     -------
     kits : DataFrame, one row per kit or block (``kit_id`` unique) with its
-        design and the dispatch kernel's parameters.
+        design, wiring and the dispatch kernel's parameters; ``capex_usd`` is the
+        sum of its bill-of-materials lines.
     bom : DataFrame, bill-of-materials lines per kit (``kit_id``,
         ``component_kind``, ``component_id``, ``description``, ``unit``,
         ``quantity_per_kit``, ``unit_price_usd``).
-    rejected : DataFrame, combinations turned down with the rule that failed.
+    rejected : DataFrame, combinations turned down: ``scheme``, ``design``,
+        ``rule`` (a key of :data:`REJECTION_RULES`) and a readable ``reason``.
     """
-    rows, rejected = [], []
-    shs_v = [v for v in voltages_v if v in (12, 24)]
-    for v in shs_v:
-        for module in lib.pv_modules.itertuples(index=False):
+    b = _Builder(lib, cond, max_parallel_strings)
+    for v in voltages_v:
+        if v in (12, 24):
+            b.household_kits(v)
+        elif v == 48:
+            b.plant_blocks(v)
+    return b.tables()
+
+
+class _Builder:
+    """Collects the kits and rejections of :func:`candidate_kits`."""
+
+    def __init__(self, lib: ComponentLibrary, cond: DesignConditions, max_parallel_strings: int):
+        self.lib, self.cond, self.max_parallel = lib, cond, max_parallel_strings
+        self.parts = _Parts(lib)
+        self.modules = list(self.parts.modules.values())
+        self.batteries = list(self.parts.batteries.values())
+        self.inverters = sorted(self.parts.inverters.values(), key=lambda r: (r.rated_power_w, r.price_usd))
+        self.rows: list[dict] = []
+        self.rejected: list[dict] = []
+        self._ctrl: dict = {}
+        self._wires: dict = {}
+
+    def reject(self, scheme, design, rule, reason):
+        self.rejected.append({"scheme": scheme, "design": design, "rule": rule, "reason": reason})
+
+    def controllers(self, group: str, v: int) -> list:
+        """Controllers of a kind group ('pwm' = battery-tied, 'mppt') for a system voltage, cheapest first."""
+        if (group, v) not in self._ctrl:
+            kinds = ("mppt",) if group == "mppt" else ("pwm", "series", "shunt")
+            ok = [c for c in self.parts.controllers.values() if c.kind in kinds
+                  and v in [int(x) for x in str(c.battery_voltages_v).split(";") if x]]
+            self._ctrl[(group, v)] = sorted(ok, key=lambda c: c.price_usd)
+        return self._ctrl[(group, v)]
+
+    def add(self, scheme, v, module, ns, npar, bat, bs, bp, ctrl, inv, design):
+        """A kit row, unless the library lacks a cable or fuse it needs (then rejections)."""
+        key = (scheme, v, module.module_id, ns, npar, ctrl.controller_id, inv.inverter_id if inv else "", bat.chemistry)
+        if key not in self._wires:
+            voc_cold = ns * voc_at_temperature(module.voc_v, module.temp_coeff_voc_pct_per_k, self.cond.cold_ambient_c)
+            self._wires[key] = wiring(scheme, v, module, ns, npar, ctrl, inv, stock=self.parts.stock,
+                                      charge_v=ABSORPTION_V_PER_12V[bat.chemistry] * v / 12.0,
+                                      string_voc_cold_v=voc_cold)
+        wires, problems = self._wires[key]
+        for rule, why in problems:
+            self.reject(scheme, design + (f" with inverter {inv.inverter_id}" if inv else " (DC)"), rule, why)
+        if not problems:
+            self.rows.append(_kit_row(scheme, v, module, ns, npar, bat, bs, bp, ctrl, 1, inv, wires))
+
+    def banks(self, scheme, array, v, usable_range, wp):
+        """Battery banks for an array, rejecting those that need too many strings in parallel."""
+        options, too_many = _battery_options(self.batteries, v, usable_range, wp, self.max_parallel)
+        for bat, why in too_many:
+            self.reject(scheme, f"{array} + {bat.battery_id}", "battery_parallel", why)
+        return options
+
+    def household_kits(self, v: int) -> None:
+        cond = self.cond
+        for module in self.modules:
             for group in ("pwm", "mppt"):
-                ctrls = _controllers_for(lib, group, v)
-                if ctrls.empty:
+                ctrls = self.controllers(group, v)
+                if not ctrls:
                     continue
-                series_options = [v // 12] if group == "pwm" else [1, 2, 3, 4]
-                for ns in series_options:
+                for ns in ([v // 12] if group == "pwm" else [1, 2, 3, 4]):
                     for npar in SHS_ARRAY_LADDER:
                         wp = ns * npar * module.power_stc_w
                         if wp > SHS_MAX_ARRAY_W:
                             continue
-                        for bat, bs, bp in _battery_options(lib, v, SHS_USABLE_WH_PER_WP, wp, max_parallel_strings):
-                            chosen, why = None, "no controller of this kind fits"
-                            for c in ctrls.itertuples(index=False):
-                                ok, why = _array_ok(module, ns, v, bat.chemistry, group, cond, c.max_pv_voltage_v)
-                                if not ok:
+                        array = f"{v} V {ns}x{npar} {module.module_id} ({group})"
+                        why = system_voltage_reason(v, wp)
+                        if why:
+                            self.reject("shs", array, "system_voltage", why)
+                            continue
+                        for bat, bs, bp in self.banks("shs", array, v, SHS_USABLE_WH_PER_WP, wp):
+                            design = f"{v} V {ns}x{npar} {module.module_id} + {bs}x{bp} {bat.battery_id} ({group})"
+                            chosen, rule, why = None, "controller_current", "no controller of this kind fits"
+                            for c in ctrls:
+                                rule, why = string_voltage_check(module, ns, v, bat.chemistry, group, cond,
+                                                                 c.max_pv_voltage_v)
+                                if rule:
                                     continue
-                                need_a = (NEC_690_8_FACTOR * module.isc_a * npar if group == "pwm"
-                                          else wp / v / MPPT_OVERSIZE)
+                                need_a = controller_current_need_a(group, module, npar, wp, v)
                                 if c.rated_current_a < need_a:
-                                    why = f"controller {c.controller_id} {c.rated_current_a:.0f} A < {need_a:.1f} A needed (NEC 690.8(A))"
+                                    rule, why = "controller_current", _controller_reason(group, c, need_a)
                                     continue
                                 chosen = c
                                 break
                             if chosen is None:
-                                rejected.append({"scheme": "shs", "design": f"{v} V {ns}x{npar} {module.module_id} + {bs}x{bp} {bat.battery_id} ({group})", "reason": why})
+                                self.reject("shs", design, rule, why)
                                 continue
-                            if chosen.load_output_a > 0 and wp <= 400:
-                                rows.append(_kit_row("shs", "dc", v, module, ns, npar, bat, bs, bp, chosen, 1, None))
-                            if wp >= 300 and v >= 24:
-                                invs = lib.inverters[(lib.inverters.battery_voltage_v == v)
-                                                     & (lib.inverters.rated_power_w >= SHS_INVERTER_PER_WP * wp)]
-                                for inv in invs.sort_values("rated_power_w").head(1).itertuples(index=False):
-                                    rows.append(_kit_row("shs", "ac", v, module, ns, npar, bat, bs, bp, chosen, 1, inv))
-    if 48 in voltages_v:
-        v = 48
-        for module in lib.pv_modules.itertuples(index=False):
-            for c in _controllers_for(lib, "mppt", v).itertuples(index=False):
-                best = None
+                            if chosen.load_output_a > 0 and wp <= DC_MAX_ARRAY_W:
+                                self.add("shs", v, module, ns, npar, bat, bs, bp, chosen, None, design)
+                            if wp >= AC_MIN_ARRAY_W:
+                                need_w = SHS_INVERTER_PER_WP * wp
+                                inv = next((i for i in self.inverters if i.battery_voltage_v == v
+                                            and i.rated_power_w >= need_w), None)
+                                if inv is None:
+                                    self.reject("shs", design + " (AC)", "inverter_rating",
+                                                f"no {v} V inverter rated {need_w:.0f} W or more "
+                                                f"({SHS_INVERTER_PER_WP:g} W per Wp) in the library")
+                                else:
+                                    self.add("shs", v, module, ns, npar, bat, bs, bp, chosen, inv, design)
+
+    def plant_blocks(self, v: int) -> None:
+        cond = self.cond
+        lo, hi = BLOCK_INVERTER_PER_WP
+        for module in self.modules:
+            for c in self.controllers("mppt", v):
+                best, rule, why = None, "", ""
                 for ns in range(1, 8):
-                    ok, why = _array_ok(module, ns, v, "lifepo4", "mppt", cond, c.max_pv_voltage_v)
-                    if ok:
+                    r, w = string_voltage_check(module, ns, v, "lifepo4", "mppt", cond, c.max_pv_voltage_v)
+                    if not r:
                         best = ns  # the longest valid string keeps currents low
+                    else:
+                        rule, why = r, w
+                design = f"{module.module_id} on {c.controller_id}"
                 if best is None:
-                    rejected.append({"scheme": "minigrid", "design": f"{module.module_id} on {c.controller_id}", "reason": why})
+                    self.reject("minigrid", design, rule, why)
                     continue
-                npar = int(c.rated_current_a * v * MPPT_OVERSIZE // (best * module.power_stc_w))
+                string_wp = best * module.power_stc_w
+                npar = int(c.rated_current_a * v * MPPT_OVERSIZE // string_wp)
                 if npar < 1:
+                    self.reject("minigrid", design, "controller_current",
+                                _controller_reason("mppt", c, controller_current_need_a("mppt", module, 1, string_wp, v)))
                     continue
-                wp = best * npar * module.power_stc_w
-                if wp < 1000:
-                    continue  # a block below 1 kWp is a large SHS, not a plant block
-                for bat, bs, bp in _battery_options(lib, v, BLOCK_USABLE_WH_PER_WP, wp, max_parallel_strings):
-                    ok, why = _array_ok(module, best, v, bat.chemistry, "mppt", cond, c.max_pv_voltage_v)
-                    if not ok:
-                        rejected.append({"scheme": "minigrid", "design": f"{module.module_id} on {c.controller_id} with {bat.battery_id}", "reason": why})
+                wp = npar * string_wp
+                design = f"{v} V {best}x{npar} {module.module_id} on {c.controller_id}"
+                why = system_voltage_reason(v, wp)
+                if why:
+                    self.reject("minigrid", design, "system_voltage", why)
+                    continue
+                invs = [i for i in self.inverters if i.battery_voltage_v == v and lo * wp <= i.rated_power_w <= hi * wp]
+                for bat, bs, bp in self.banks("minigrid", design, v, BLOCK_USABLE_WH_PER_WP, wp):
+                    bank = f"{design} + {bs}x{bp} {bat.battery_id}"
+                    rule, why = string_voltage_check(module, best, v, bat.chemistry, "mppt", cond, c.max_pv_voltage_v)
+                    if rule:
+                        self.reject("minigrid", bank, rule, why)
                         continue
-                    for inv in lib.inverters[lib.inverters.battery_voltage_v == v].itertuples(index=False):
-                        if 0.6 * wp <= inv.rated_power_w <= 1.7 * wp:
-                            rows.append(_kit_row("minigrid", "ac", v, module, best, npar, bat, bs, bp, c, 1, inv))
-    kits = thin_candidates(pd.DataFrame(rows).drop_duplicates("kit_id"), lib)
-    bom = pd.DataFrame([line for k in kits.to_dict("records") for line in _bom(lib, k)])
-    capex = bom.assign(x=bom.quantity_per_kit * bom.unit_price_usd).groupby("kit_id")["x"].sum()
-    kits["capex_usd"] = kits["kit_id"].map(capex).astype(float)
-    kits["battery_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "battery")).fillna(0.0)
-    kits["controller_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "charge_controller")).fillna(0.0)
-    kits["inverter_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "inverter")).fillna(0.0)
-    return kits, bom, pd.DataFrame(rejected, columns=["scheme", "design", "reason"])
+                    if not invs:
+                        self.reject("minigrid", bank, "inverter_rating",
+                                    f"no {v} V inverter rated {lo * wp:.0f}-{hi * wp:.0f} W ({lo:g}-{hi:g} W per Wp) "
+                                    f"in the library")
+                    for inv in invs:
+                        self.add("minigrid", v, module, best, npar, bat, bs, bp, c, inv, bank)
+
+    def tables(self) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+        rows = self.rows
+        # the same kit id can come from string layouts (1 x 4 or 2 x 2 modules): keep the cheapest wired
+        row_lines = [_bom(self.parts, r) for r in rows]
+        row_capex = [sum(x["quantity_per_kit"] * x["unit_price_usd"] for x in ls) for ls in row_lines]
+        lines, capex, keep = {}, {}, []
+        for i in sorted(range(len(rows)), key=lambda i: row_capex[i]):
+            kid = rows[i]["kit_id"]
+            if kid not in lines:
+                lines[kid], capex[kid] = row_lines[i], row_capex[i]
+                keep.append(i)
+        kits = thin_candidates(pd.DataFrame([rows[i] for i in sorted(keep)]), self.lib, capex)
+        bom = pd.DataFrame([line for kid in kits["kit_id"] for line in lines[kid]])
+        kits["capex_usd"] = kits["kit_id"].map(capex).astype(float)
+        kits["battery_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "battery")).fillna(0.0)
+        kits["controller_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "charge_controller")).fillna(0.0)
+        kits["inverter_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "inverter")).fillna(0.0)
+        rejected = pd.DataFrame(self.rejected, columns=["scheme", "design", "rule", "reason"]).drop_duplicates()
+        return kits, bom, rejected.reset_index(drop=True)
 
 
 USABLE_RATIO_TARGETS = {"shs": (1.5, 2.5, 4.0), "minigrid": (2.0, 3.0, 4.5)}
 
 
-def thin_candidates(kits: pd.DataFrame, lib: ComponentLibrary) -> pd.DataFrame:
+def thin_candidates(kits: pd.DataFrame, lib: ComponentLibrary, capex_usd: dict | None = None) -> pd.DataFrame:
     """Keep a ladder of sensible, non-dominated candidates.
 
     1. Of designs with the same topology, voltage, controller kind, chemistry,
        array power and usable storage, keep the cheapest (e.g. one 100 W module
-       rather than two of 50 W).
+       rather than two of 50 W) by ``capex_usd`` (kit_id -> USD, the whole bill of
+       materials) or, without it, by the price of the main components.
     2. Per array size, keep the storage options nearest each ratio of usable
        Wh per Wp in :data:`USABLE_RATIO_TARGETS` (per chemistry).
     3. Minigrid blocks use modules of at least 250 W and the inverter nearest
        the array power (common practice).
     """
     k = kits.copy()
-    k["_capex"] = [sum(_component_price(lib, r)) for r in k.to_dict("records")]
+    if capex_usd is not None:
+        k["_capex"] = k["kit_id"].map(capex_usd).astype(float)
+    else:
+        k["_capex"] = [sum(_component_price(lib, r)) for r in k.to_dict("records")]
     mg = k.scheme == "minigrid"
     big = k["module_id"].map(lib.pv_modules["power_stc_w"]) >= 250
     k = k[~mg | big]
@@ -363,7 +832,7 @@ def thin_candidates(kits: pd.DataFrame, lib: ComponentLibrary) -> pd.DataFrame:
         keep = gap.groupby([blk.module_id, blk.controller_id, blk.battery_id, blk.batteries]).idxmin()
         k = pd.concat([k[k.scheme != "minigrid"], k.loc[keep.values]])
     same = ["scheme", "topology", "system_voltage_v", "controller_kind", "chemistry", "array_wp", "battery_usable_wh"]
-    k = k.sort_values("_capex").drop_duplicates(same)
+    k = k.sort_values(["_capex", "kit_id"]).drop_duplicates(same)
     k["_ratio"] = k["battery_usable_wh"] / k["array_wp"]
     keep_idx = set()
     for (scheme, *_), g in k.groupby(["scheme", "topology", "system_voltage_v", "controller_kind", "chemistry", "array_wp"]):

@@ -101,6 +101,12 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
     plan_cols["ghi_kwh_m2_day"] = w.ghi_kwh_m2_day.reindex(sites.index)
     plan_cols["temp_mean_default_used"] = w.temp_mean_default.reindex(sites.index)
     site_layer = sites.join(plan_cols.add_prefix("plan_")).reset_index(drop=True)
+    # the site table's own columns as the user gave them; where reading filled a default or
+    # normalised a cell, the value the plan used goes in a plan_<column>_used column
+    for name, given in result.sites.attrs.get("as_given", {}).items():
+        if name in site_layer and len(given) == len(site_layer):
+            site_layer[f"plan_{name}_used"] = site_layer[name]
+            site_layer[name] = pd.Series(given, dtype=object)
 
     per_site_full = sites[["site_id", "site_name", "district", "depot", "scheme"]].join(plan_cols)
     # kit counts per depot for the bill of materials
@@ -158,10 +164,12 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         ("demand", total_demand, "kWh/day"),
         ("capex", float(c.capex_usd.sum()), "USD"),
         ("lifecycle cost (net present)", float(c.cost_usd.sum()), "USD"),
+        ("  of which transport from the depots (net present)", float(c.transport_usd.sum()) if "transport_usd" in c else 0.0, "USD"),
+        ("  of which salvage value at the horizon (credit, net present)", -float(c.salvage_usd.sum()) if "salvage_usd" in c else 0.0, "USD"),
         ("cost per household (lifecycle)", float(c.cost_usd.sum()) / max(n_hh, 1), "USD/household"),
         ("cost per kWh served (LCOE)", _program_lcoe(c, result), "USD/kWh"),
         ("unmet energy in the design weather year", 100 * float(c.unmet_kwh_day.sum()) / max(served_demand, 1e-9), "% of demand of served units"),
-        ("demand of units with no kit", total_demand - served_demand, "kWh/day"),
+        ("demand of units with no kit", _clean_zero(total_demand - served_demand, total_demand), "kWh/day"),
         ("critical load unmet in the design weather year", 100 * float(c.critical_unmet_kwh_day.sum()) / max(float(c.critical_kwh_day.sum()), 1e-9), "% of critical demand"),
         (f"households or units short of their tier's hours of supply on {result.config['program']['tier_days_share']:.0%} of days",
          int(c.tier_shortfall.sum()), "households or units"),
@@ -176,11 +184,30 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         "lowest_tier_reached": "lowest tier reached, design year",
         "households_below_their_tier": "households or units below their tier (count)",
         "ghi_kwh_m2_day": "GHI (kWh/m2/day)", "temp_mean_default_used": "default temperature used"})
+    monthly = [monthly_balance(tr, tr.get("blocks", 1)).reset_index().assign(
+                   scheme=scheme, unit_id=tr["unit_id"], kit_id=tr["kit_id"], weather_year=tr["weather_year"] + 1)
+               for scheme, tr in result.traces.items()]
+    monthly_table = (pd.concat(monthly, ignore_index=True)[
+        ["scheme", "unit_id", "kit_id", "weather_year", "month", "pv_available_kwh", "pv_used_kwh", "pv_spilled_kwh",
+         "demand_kwh", "served_kwh", "unmet_kwh"]].rename(columns={
+            "weather_year": "design weather year (number)", "pv_available_kwh": "array energy available (kWh)",
+            "pv_used_kwh": "array energy used (kWh)", "pv_spilled_kwh": "array energy spilled (kWh)",
+            "demand_kwh": "demand (kWh)", "served_kwh": "served (kWh)", "unmet_kwh": "unmet (kWh)"})
+        if monthly else pd.DataFrame())
+    specs = None
+    if result.kit_params is not None and len(chosen_ids):
+        rows = np.flatnonzero(result.kits.kit_id.isin(chosen_ids).to_numpy())
+        specs = kit_specifications(result.kits.iloc[rows], result.kit_params[rows])
     unserved_table = result.unserved.rename(columns={"nearest_unmet_fraction_design": "nearest option unmet energy (fraction)"})
     return {"program": program, "demand_by_tier": demand_by_tier(result), "by_district": by_district, "by_depot": by_depot, "sites": sites_table,
             "kit_types": kit_types, "comparisons": result.comparisons,
-            "cost_curves": result.cost_curves, "unserved": unserved_table,
-            "_bom": bom, "_kit_counts": kit_counts, "_site_layer": site_layer, "_chosen": c}
+            "cost_curves": result.cost_curves, "monthly_balance": monthly_table, "unserved": unserved_table,
+            "_bom": bom, "_kit_counts": kit_counts, "_kit_specs": specs, "_site_layer": site_layer, "_chosen": c}
+
+
+def _clean_zero(value: float, scale: float) -> float:
+    """``value``, or 0.0 where it is rounding noise relative to ``scale`` (no '-0.000')."""
+    return 0.0 if abs(value) <= 1e-9 * max(abs(scale), 1.0) else float(value)
 
 
 def demand_by_tier(result: PlanResult) -> pd.DataFrame:
@@ -243,19 +270,52 @@ def figures(result: PlanResult, tables: dict) -> dict:
         figs[f"State of charge at a typical {scheme} unit"] = plots.soc_trace(
             np.arange(len(tr["soc"])), tr["soc"], tr["connected"] < 0.5,
             f"{tr['unit_id']} with {tr['kit_id']} (design weather year {tr['weather_year'] + 1})")
+    for scheme, tr in result.traces.items():
+        what = f"per plant ({tr['blocks']} blocks)" if scheme == "minigrid" else "per kit"
+        figs[f"Monthly energy balance at a typical {scheme} unit"] = plots.monthly_energy_balance(
+            monthly_balance(tr, tr.get("blocks", 1)),
+            f"{tr['unit_id']} with {tr['kit_id']}, design weather year, {what}")
     kt = tables["kit_types"]
     per = c.groupby("kit_id")[["capex_usd", "cost_usd"]].sum().reindex(kt.kit_id)
     figs["Cost by kit type"] = plots.cost_by_kit_type(kt.kit_id.to_numpy(), per.capex_usd.to_numpy(), per.cost_usd.to_numpy())
+    if len(result.cost_curves):
+        figs["Cost against the number of kit types and the energy target"] = plots.cost_curves(
+            result.cost_curves, "Lifecycle cost of the best catalogue (one integer program per point)")
     return figs
 
 
+#: Hour-of-year to calendar month for the kernel's 8760-hour (non-leap) year.
+HOUR_MONTH = pd.date_range("2001-01-01", periods=8760, freq="h").month.to_numpy()
+
+
+def monthly_balance(trace: dict, multiplier: float = 1.0) -> pd.DataFrame:
+    """Monthly sums (kWh) of an hourly trace (:func:`fleet.dispatch.simulate_trace`): array
+    energy available at the controller output, used and spilled; demand (general and critical
+    loads), served and unmet. ``multiplier`` scales a per-block trace to the plant."""
+    k = float(multiplier) / 1000.0
+    frame = pd.DataFrame({
+        "pv_available_kwh": np.asarray(trace["pv_bus_w"], float) * k,
+        "pv_used_kwh": np.asarray(trace["pv_used_w"], float) * k,
+        "pv_spilled_kwh": np.asarray(trace["spill_w"], float) * k,
+        "demand_kwh": np.asarray(trace["load_w"], float) * k,
+        "served_kwh": np.asarray(trace["served_w"], float) * k,
+    })
+    frame["unmet_kwh"] = frame.demand_kwh - frame.served_kwh
+    out = frame.groupby(HOUR_MONTH[: len(frame)]).sum()
+    out.index.name = "month"
+    return out
+
+
 def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str], overwrite: bool = False,
-              started: float | None = None, tables: dict | None = None) -> dict[str, Path]:
+              started: float | None = None, tables: dict | None = None, extra_tables: dict | None = None,
+              record_extra: dict | None = None) -> dict[str, Path]:
     """Write all outputs into ``out_dir`` atomically and return their paths.
 
     The files are written into a hidden sibling folder first and moved into
     place only when all are complete, so a failed run leaves any earlier
-    run folder untouched. ``tables`` may pass in :func:`plan_tables` already built.
+    run folder untouched. ``tables`` may pass in :func:`plan_tables` already built;
+    ``extra_tables`` (name -> table) are written first in the deployment summary (the
+    ``changes`` of a repriced run) and ``record_extra`` is added to ``run.json``.
     """
     from .report import (write_bill_of_materials, write_deployment_html, write_deployment_summary,
                          write_sites_gpkg)
@@ -272,14 +332,17 @@ def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str]
         notes = assumptions(result)
         spares = result.config["catalogue"]["spares_fraction"]
         write_bill_of_materials(tmp / "bill_of_materials.xlsx", tables["_bom"], tables["_kit_counts"],
-                                spares_fraction=spares, assumptions=notes, cautions=CAUTIONS)
-        public = {k: v for k, v in tables.items() if not k.startswith("_")}
+                                spares_fraction=spares, assumptions=notes, cautions=CAUTIONS,
+                                kit_specs=tables.get("_kit_specs"))
+        public = {**(extra_tables or {}), **{k: v for k, v in tables.items() if not k.startswith("_")}}
         write_deployment_summary(tmp / "deployment_summary.xlsx", public, warnings=result.warnings,
                                  assumptions=notes, cautions=CAUTIONS)
         write_deployment_html(tmp / "deployment_summary.html", public, figures(result, tables),
                               title=result.config["program"]["name"], warnings=result.warnings,
                               assumptions=notes, cautions=CAUTIONS)
-        write_sites_gpkg(tmp / "sites.gpkg", tables["_site_layer"])
+        write_sites_gpkg(tmp / "sites.gpkg", tables["_site_layer"], getattr(result.config, "depots", None))
+        from .reprice import STATE_FILE, save_state
+        save_state(result, tmp / STATE_FILE)
         record = {
             "fleet_run": 1,
             "created_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime()),
@@ -296,6 +359,7 @@ def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str]
                           for s, r in result.catalogues.items()},
             "options_simulated": int(len(result.evaluations)),
             "warnings": result.warnings,
+            **(record_extra or {}),
         }
         (tmp / "run.json").write_text(json.dumps(record, indent=2, default=_json_default))
         if out.exists():
@@ -320,3 +384,79 @@ def _json_default(o):
     if isinstance(o, Path):
         return str(o)
     return str(o)
+
+
+def kit_specifications(kits: pd.DataFrame, params: np.ndarray, *, battery_temp_c: float = 25.0) -> pd.DataFrame:
+    """Specification sheet of kit types: one row per property (with its unit), one column per kit.
+
+    Electrical data of the array, battery, controller and inverter; the controller's settings
+    for the whole battery (not per cell) at ``battery_temp_c``: low-voltage disconnect (at the
+    battery's rated discharge current for DC kits, whose disconnect follows the load current;
+    the inverter's fixed cut-off for AC systems), reconnect, absorption and float voltages and
+    the temperature compensation; cable sections and fuse ratings
+    (:func:`fleet.kits.wiring`). ``params`` are the kits' kernel parameters
+    (:func:`fleet.kits.kernel_parameters`), row for row.
+    """
+    from . import dispatch
+    from .battery import voltage_tables
+    vt = voltage_tables()
+    K = dispatch.K
+    rows: dict[str, dict] = {}
+
+    def put(name, unit, values):
+        rows[f"{name} ({unit})" if unit else name] = dict(zip(kits.kit_id, values))
+
+    def col(name, default=np.nan):
+        return kits[name].to_numpy() if name in kits else np.full(len(kits), default, dtype=object)
+
+    put("description", "", col("kit_label", ""))
+    put("scheme", "", col("scheme", ""))
+    put("topology", "", np.where(col("topology", "") == "ac", "AC (inverter on the battery)", "DC (loads on the controller)"))
+    put("system voltage", "V", col("system_voltage_v"))
+    put("PV module", "", col("module_id", ""))
+    put("modules in series", "count", col("modules_in_series"))
+    put("strings in parallel", "count", col("strings_in_parallel"))
+    put("array", "Wp", col("array_wp"))
+    put("battery", "", col("battery_id", ""))
+    put("chemistry", "", col("chemistry", ""))
+    put("batteries in series x strings", "", [f"{int(a)} x {int(b)}" for a, b in zip(col("batteries_in_series", 0), col("battery_strings", 0))])
+    put("battery capacity", "Ah", col("battery_ah"))
+    put("battery nominal energy", "Wh", col("battery_nominal_wh"))
+    put("battery usable energy", "Wh", col("battery_usable_wh"))
+    put("usable depth of discharge", "fraction", col("usable_dod"))
+    put("charge controller", "", col("controller_id", ""))
+    put("controller kind", "", np.char.upper(col("controller_kind", "").astype(str)))
+    put("controller rated current (all controllers)", "A", col("controller_max_a"))
+    put("inverter", "", col("inverter_id", ""))
+    put("output rating", "W", col("max_load_w"))
+    set_lvd, set_lvr, set_abs, set_flt, comp = [], [], [], [], []
+    for i in range(len(kits)):
+        p = params[i]
+        n = p[K["cells"]]
+        sp = dispatch.pair_setpoints(p, vt[int(p[K["chemistry"]])], float(battery_temp_c), 0.0)
+        x = p[K["disconnect_ref_c"]] if p[K["ac"]] > 0 else 1.0 / p[K["rated_hours"]]
+        set_lvd.append(n * (sp[dispatch.S_LVD] + sp[dispatch.S_LVDK] * (sp[dispatch.S_XREF] - x)))
+        set_lvr.append(n * sp[dispatch.S_LVR])
+        set_abs.append(n * sp[dispatch.S_VABS])
+        set_flt.append(n * sp[dispatch.S_VFLOAT])
+        comp.append(1000.0 * n * p[K["temp_comp_v_per_k_cell"]])
+    put(f"low-voltage disconnect at {battery_temp_c:g} degC", "V", set_lvd)
+    put("low-voltage reconnect", "V", set_lvr)
+    put(f"absorption voltage at {battery_temp_c:g} degC", "V", set_abs)
+    put(f"float voltage at {battery_temp_c:g} degC", "V", set_flt)
+    put("charge voltage temperature compensation", "mV/K", comp)
+    put("PV circuit design current (1.25 x Isc)", "A", col("pv_circuit_current_a"))
+    put("PV cable cross-section (copper)", "mm2", col("pv_cable_mm2"))
+    put("PV cable voltage drop", "%", col("pv_cable_drop_pct"))
+    put("string fuse (where 3 or more strings)", "A", col("string_fuse_a"))
+    for circuit, what in (("battery", "controller to battery"), ("inverter", "battery to inverter"),
+                          ("load", "controller load output to distribution")):
+        put(f"{what}: design current", "A", col(f"{circuit}_circuit_current_a"))
+        put(f"{what}: cable cross-section (copper)", "mm2", col(f"{circuit}_cable_mm2"))
+        put(f"{what}: cable voltage drop", "%", col(f"{circuit}_cable_drop_pct"))
+    put("battery fuse (controller circuit)", "A", col("battery_fuse_a"))
+    put("battery fuse (inverter circuit)", "A", col("inverter_fuse_a"))
+    put("capex per kit", "USD", col("capex_usd"))
+    table = pd.DataFrame(rows).T
+    table.index.name = "property"
+    return table.reset_index()

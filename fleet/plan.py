@@ -16,7 +16,7 @@ from typing import Any, Callable, Iterable
 import numpy as np
 import pandas as pd
 
-from . import battery, dispatch, economics, rule_of_thumb
+from . import battery, dispatch, economics, rule_of_thumb, transport
 from .catalogue import CatalogueResult, custom_best, optimise_catalogue
 from .components import ComponentLibrary
 from .config import ProgramConfig
@@ -24,7 +24,7 @@ from .demand import HOURS_PER_YEAR, service_units, settings_from_config, unit_lo
 from .errors import InputError, Problem
 from .battery import voltage_tables
 from .iv import array_power_per_string, tables_for_kits
-from .kits import DesignConditions, candidate_kits, kernel_parameters
+from .kits import DesignConditions, candidate_kits, kernel_parameters, surge_ok, unit_surge_need_w
 from .pv import combined_losses_fraction
 from .resource import EMBEDDED, site_weather_from, utc_offset_hours
 
@@ -75,6 +75,8 @@ class PlanResult:
     config: ProgramConfig
     traces: dict[str, dict] = field(default_factory=dict)
     cost_curves: pd.DataFrame = field(default_factory=pd.DataFrame)
+    kit_params: np.ndarray | None = None  # kernel parameters of ``kits``, row for row
+    transport: pd.DataFrame = field(default_factory=pd.DataFrame)  # per site: depot, km, delivery USD
 
 
 def array_losses(cfg: ProgramConfig) -> float:
@@ -170,6 +172,8 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
     target = cfg["program"]["reliability_target"]
     rows, screened = [], []
     smallest = kits.groupby("scheme").array_wp.min()
+    surge_need = unit_surge_need_w(units, design, sites)  # W a unit's largest motor start asks for
+    surge_pass = surge_ok(kits, surge_need)               # (units, kits); DC kits always pass
     for u_idx, u in enumerate(units.itertuples(index=False)):
         s_idx = u.site_index
         demand_kwh = (design.daily_energy_wh.iat[u_idx] + design.deferrable_wh_day.iat[u_idx]) * 365 / 1000.0
@@ -184,6 +188,9 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
                 if peak > k.max_load_w:
                     screened.append((u.unit_id, k.kit_id, 1, f"peak load {peak:.0f} W exceeds the kit's output rating {k.max_load_w:.0f} W"))
                     continue
+                if not surge_pass[u_idx, k_idx]:
+                    screened.append((u.unit_id, k.kit_id, 1, f"motor starting needs {surge_need[u_idx]:.0f} W, above the inverter's surge rating {k.inverter_surge_w:.0f} W"))
+                    continue
                 if best_kwh * 0.98 < demand_kwh * (1 - site_target):
                     screened.append((u.unit_id, k.kit_id, 1, f"array yields {best_kwh:.0f} kWh/year in the best year, demand needs {demand_kwh * (1 - site_target):.0f}"))
                     continue
@@ -194,6 +201,7 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
             else:
                 n_energy = demand_kwh / max(k.array_wp * mean_yield[s_idx], 1e-9)
                 n_peak = int(np.ceil(peak / k.max_load_w))
+                n_peak = max(n_peak, int(np.ceil(surge_need[u_idx] / k.inverter_surge_w)))  # blocks share a motor start
                 counts = sorted({max(1, n_peak, int(np.ceil(n_energy * f))) for f in BLOCK_COUNT_FACTORS})
                 for n in counts:
                     rows.append((u_idx, k_idx, s_idx, n, site_target))
@@ -254,8 +262,18 @@ def battery_temperature_c(sites, cfg: ProgramConfig, weather_info: pd.DataFrame 
     return mean + offset
 
 
-def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=None) -> pd.DataFrame:
-    """Reliability, service and lifecycle cost of every simulated option."""
+def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=None,
+             site_delivery_usd=None) -> pd.DataFrame:
+    """Reliability, service and lifecycle cost of every simulated option.
+
+    Lifecycle cost (:func:`fleet.economics.lifecycle_cost`) includes transport from
+    the depot (``transport_usd``: one delivery per kit or block at year 0 and a
+    share of one with every battery replacement) and subtracts the salvage value
+    left at the end of the horizon (``salvage_usd``); both present values, USD,
+    for all the unit's kits. ``site_delivery_usd`` (per site, USD per kit or
+    block; :func:`fleet.transport.site_transport`) defaults to what the program's
+    depots give (``cfg.depots``), or 0 without ``sites`` or depots.
+    """
     m = {name: metrics[:, :, j] for j, name in enumerate(dispatch.METRICS)}
     q = cfg["program"]["target_confidence"]
     unmet_frac = _ratio(m["unmet_wh"], m["demand_wh"])
@@ -280,11 +298,22 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     life = battery.life_from_damage(m["cycle_damage"].mean(axis=1), calendar)
     e = cfg["economics"]
     p = cfg["program"]
-    lcc_one = economics.lifecycle_cost(
-        k.capex_usd.to_numpy(), k.battery_capex_usd.to_numpy(), life, k.controller_capex_usd.to_numpy(),
-        k.inverter_capex_usd.to_numpy(), horizon_years=p["horizon_years"], rate=p["discount_rate"],
-        om_fraction=e["om_fraction_per_year"], controller_life_years=e["controller_life_years"],
-        inverter_life_years=e["inverter_life_years"])
+    depots = getattr(cfg, "depots", None)
+    if site_delivery_usd is None and sites is not None and depots is not None:
+        site_delivery_usd = transport.site_transport(sites, depots, cfg["transport"]).delivery_usd.to_numpy()
+    delivery = (np.asarray(site_delivery_usd, dtype=float)[pairs.site_idx.to_numpy()]
+                if site_delivery_usd is not None else np.zeros(len(pairs)))
+    battery_delivery = cfg["transport"]["battery_replacement_share"] * delivery
+    parts = (k.capex_usd.to_numpy(), k.battery_capex_usd.to_numpy(), life, k.controller_capex_usd.to_numpy(),
+             k.inverter_capex_usd.to_numpy())
+    lives = dict(horizon_years=p["horizon_years"], rate=p["discount_rate"],
+                 controller_life_years=e["controller_life_years"], inverter_life_years=e["inverter_life_years"])
+    lcc_one = economics.lifecycle_cost(*parts, om_fraction=e["om_fraction_per_year"],
+                                       array_life_years=e["array_life_years"], delivery_usd=delivery,
+                                       battery_delivery_usd=battery_delivery, **lives)
+    salvage_one = economics.kit_salvage_present_value(*parts, array_life_years=e["array_life_years"], **lives)
+    transport_one = economics.transport_present_value(delivery, battery_delivery, life, p["horizon_years"],
+                                                      p["discount_rate"])
     served_kwh_year = m["served_wh"].mean(axis=1) / 1000.0 * blocks
     out = pd.DataFrame({
         "unit_id": u.unit_id, "site_id": u.site_id, "scheme": u.scheme, "group": u.group,
@@ -317,6 +346,8 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
         "served_kwh_year_per_kit": served_kwh_year,
         "capex_usd": k.capex_usd.to_numpy() * mult,
         "lifecycle_cost_usd": lcc_one * mult,
+        "transport_usd": transport_one * mult,
+        "salvage_usd": salvage_one * mult,
         "balance_residual_wh": np.abs(m["balance_residual_wh"]).max(axis=1),
     })
     p_cfg = cfg["program"]
@@ -557,6 +588,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     s = cfg["system"]
     cond = design_conditions(sites, cfg, weather.info)
     kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
+    warnings += [f"component library: {n}" for n in library.notes]
     tables = tables_for_kits(kits, library)
     params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
                                pv_losses_fraction=array_losses(cfg))
@@ -572,7 +604,11 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     t = time.perf_counter()
     tracker.stage("catalogue")
-    ev = evaluate(pairs, metrics, units, design, kits, cfg, sites, weather.info)
+    delivery = transport.site_transport(sites, getattr(cfg, "depots", None), cfg["transport"])
+    warnings += transport.depot_warnings(delivery, getattr(cfg, "depots", None),
+                                         getattr(cfg, "depots_note", ""))
+    ev = evaluate(pairs, metrics, units, design, kits, cfg, sites, weather.info,
+                  site_delivery_usd=delivery.delivery_usd.to_numpy())
     options = catalogue_options(ev)
     catalogues = {}
     c = cfg["catalogue"]
@@ -596,7 +632,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
 
     result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=catalogues,
                         comparisons=comparisons, unserved=unserved, weather=weather, demand=demand,
-                        cost_curves=curves,
+                        cost_curves=curves, kit_params=params, transport=delivery,
                         unit_params=unit_params, options=options,
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
     result.traces = representative_traces(result, params, tables)

@@ -616,12 +616,27 @@ def validate_sites(df: pd.DataFrame, label: str) -> gpd.GeoDataFrame:
     data["reliability_target"] = reliability[idx]
     data["ghi_correction"] = ghi_correction[idx]
     out = pd.DataFrame(data, index=pd.RangeIndex(len(keep)))
+    # the cells as the file gave them where reading normalised them (case) or filled a
+    # default (blank cells): outputs that round-trip the site table use these
+    as_given: dict[str, list] = {}
+    for name in ("site_name", "district", "depot", "scheme", "productive_kind", "weather_file", "health_posts",
+                 "schools", "productive_kwh_day", "street_lights", "pumping_kwh_day"):
+        raw = cells(name)
+        if raw is None:
+            continue
+        given = [None if _is_blank(raw[r]) else raw[r] for r in keep]
+        used = out[name].tolist()
+        if any(g is None or (isinstance(g, str) and g != u) for g, u in zip(given, used)):
+            as_given[name] = given
+    out.attrs["as_given"] = as_given
     if unknown:
         # Column by column, so that repeated names and dtypes survive as given.
         extras = [df.iloc[idx, i].reset_index(drop=True) for i in unknown]
         out = pd.concat([out, *extras], axis=1)
     points = gpd.points_from_xy(out["longitude"], out["latitude"], crs="EPSG:4326")
-    return gpd.GeoDataFrame(out, geometry=points, crs="EPSG:4326")
+    gdf = gpd.GeoDataFrame(out, geometry=points, crs="EPSG:4326")
+    gdf.attrs["as_given"] = as_given
+    return gdf
 
 
 # --------------------------------------------------------------------------

@@ -55,3 +55,45 @@ def test_every_candidate_kit_is_wired_within_its_ratings(kits):
     assert (k.pv_cable_drop_pct <= 3.0 + 1e-9).all() and (k.battery_cable_drop_pct <= 3.0 + 1e-9).all()
     many = k.strings_in_parallel >= 3
     assert k.loc[many, "string_fuse_a"].notna().all() and k.loc[~many, "string_fuse_a"].isna().all()
+
+
+def test_inverter_and_load_circuits_are_wired_and_fused(kits):
+    # source: NEC 690.8(B) (conductor 125 % of the circuit current), 690.9(B) (fuse >= 125 % of it),
+    # 240.4 (a conductor's ampacity covers the rating of the fuse protecting it); 3 % drop (# common practice)
+    k = kits[0]
+    amp = dict(zip(cables.SECTIONS_MM2, cables.AMPACITY_A))
+    ac, dc = k[k.topology == "ac"], k[k.topology == "dc"]
+    # inverter input at rated power and 90 % of nominal voltage: P / (efficiency x 0.9 x V)
+    i_inv = ac.inverter_rated_w / (ac.inverter_efficiency * 0.9 * ac.system_voltage_v)
+    assert np.allclose(ac.inverter_circuit_current_a, i_inv)
+    assert (ac.inverter_fuse_a >= 1.25 * i_inv - 1e-9).all()
+    assert (ac.inverter_cable_mm2.map(amp) >= ac.inverter_fuse_a).all()
+    assert (ac.battery_cable_mm2.map(amp) >= ac.battery_fuse_a).all()
+    assert (ac.inverter_cable_drop_pct <= 3.0 + 1e-9).all()
+    assert ac.load_cable_mm2.isna().all() and dc.inverter_cable_mm2.isna().all()
+    assert (dc.load_cable_mm2.map(amp) >= 1.25 * dc.load_circuit_current_a - 1e-9).all()
+    assert (dc.load_cable_drop_pct <= 3.0 + 1e-9).all()
+
+
+def test_section_choice_keeps_to_the_stocked_sizes_and_the_fuse():
+    # hand calculation: 20 A over 1.5 m at 12 V, 3 % drop: 0.36 V / (2 x 1.5 m x 20 A) = 6.0 ohm/km at
+    # 50 degC = 5.37 ohm/km at 20 degC (IEC 60228 Annex B, 0.00393 /K); class 5 (from memory): 2.5 mm2 has
+    # 7.98, 4 mm2 4.95 ohm/km -> 4 mm2; without 4 mm2 in stock the next stocked size, 10 mm2
+    assert cables.smallest_section_mm2(20.0, 1.5, 12.0) == 4.0
+    assert cables.smallest_section_mm2(20.0, 1.5, 12.0, available_mm2=[2.5, 10.0, 16.0]) == 10.0
+    assert np.isnan(cables.smallest_section_mm2(20.0, 1.5, 12.0, available_mm2=[1.5, 2.5]))
+    # source: NEC 240.4: a 60 A fuse needs a conductor of at least 60 A; 4 mm2 carries 55 A, 6 mm2 70 A
+    # (cables.AMPACITY_A, from memory)
+    assert cables.smallest_section_mm2(20.0, 1.5, 12.0, min_ampacity_a=60.0) == 6.0
+    assert cables.ampacity_a([4.0, 6.0]).tolist() == [55.0, 70.0]
+    with pytest.raises(ValueError):
+        cables.ampacity_a(5.0)
+
+
+def test_fuse_rating_from_a_stocked_list():
+    # source: NEC 690.9(B): at least 125 % of the current; 1.25 x 30 A = 37.5 A -> 40 A from 240.6(A),
+    # the next stocked rating (50 A) when 40 A is not stocked, none above the largest
+    assert cables.fuse_rating_a(30.0) == 40.0
+    assert cables.fuse_rating_a(30.0, [63.0, 50.0, 32.0]) == 50.0
+    assert np.isnan(cables.fuse_rating_a(60.0, [32.0, 50.0]))
+    assert np.isnan(cables.fuse_rating_a(1.0, []))

@@ -2,6 +2,7 @@
 
 import json
 import os
+import shutil
 import subprocess
 import sys
 from pathlib import Path
@@ -237,3 +238,91 @@ def test_a_monthly_resource_table_sets_the_sites_irradiation(tmp_path):
     sites = pd.read_excel(tmp_path / "run" / "deployment_summary.xlsx", sheet_name="sites")
     expected = sum(d * g for d, g in zip(days, ghi)) / 365
     assert sites["GHI (kWh/m2/day)"].iloc[0] == pytest.approx(expected, rel=0.04)
+
+
+def test_geopackage_round_trips_the_site_tables_own_columns_and_has_a_layer_per_depot(small_program):
+    import pyogrio
+
+    out = small_program["out"] / "sites.gpkg"
+    table = small_program["table"].reset_index(drop=True)
+    layer = gpd.read_file(out, layer="sites")
+    for col in table.columns:
+        got, want = layer[col], table[col]
+        if pd.api.types.is_numeric_dtype(want):
+            assert np.allclose(got.to_numpy(float), want.to_numpy(float), equal_nan=True), col
+        else:
+            assert got.fillna("").astype(str).tolist() == want.fillna("").astype(str).tolist(), col
+    layers = set(pyogrio.list_layers(out)[:, 0])
+    for depot, part in table.groupby("depot"):
+        name = "depot_" + "".join(c if c.isalnum() or c == "_" else "_" for c in depot).strip("_").lower()
+        assert name in layers
+        assert sorted(gpd.read_file(out, layer=name).site_id) == sorted(part.site_id)
+
+
+def test_bill_of_materials_has_kit_specifications_with_controller_settings(small_program):
+    book = openpyxl.load_workbook(small_program["out"] / "bill_of_materials.xlsx")
+    ws = book["kit_specs"]
+    rows = {r[0].value: [c.value for c in r[1:]] for r in ws.iter_rows(min_row=2)}
+    kits_used = [c.value for c in ws[1][1:]]
+    assert kits_used
+    volts = rows["system voltage (V)"]
+    chem = rows["chemistry"]
+    for v, c, lvd, lvr, absorb, flt in zip(volts, chem, rows["low-voltage disconnect at 25 degC (V)"],
+                                          rows["low-voltage reconnect (V)"], rows["absorption voltage at 25 degC (V)"],
+                                          rows["float voltage at 25 degC (V)"]):
+        per_12 = 12.0 / v
+        # disconnect below reconnect below float below absorption (the hysteresis of every controller)
+        assert lvd < lvr < flt <= absorb
+        if c == "lead_acid":
+            # common practice (IEEE 1013 / SAND87-7023 set-point ranges, from memory): 12 V lead-acid
+            # disconnect 11.4-12.0 V, float 13.2-13.8 V, absorption 14.1-14.8 V at 25 degC
+            assert 11.0 <= lvd * per_12 <= 12.2 and 13.2 <= flt * per_12 <= 13.8 and 14.1 <= absorb * per_12 <= 14.8
+        else:
+            # common practice (LiFePO4, 4 cells in series per 12.8 V, from memory): charge 3.45-3.65 V/cell,
+            # disconnect 2.8-3.25 V/cell
+            cells = v / 12 * 4
+            assert 3.4 <= absorb / cells <= 3.65 and 2.8 <= lvd / cells <= 3.25
+    assert all(x is None or x > 0 for x in rows["battery fuse (controller circuit) (A)"])
+
+
+def test_html_report_renders_in_headless_chromium(small_program):
+    # the report is opened the way a reader would: a browser with no network
+    chromium = shutil.which("chromium") or shutil.which("chromium-browser")
+    driver_bin = shutil.which("chromedriver")
+    if not (chromium and driver_bin):
+        pytest.skip("Chromium is installed by .ci/run (apt-get install chromium chromium-driver)")
+    from selenium import webdriver
+    from selenium.webdriver.chrome.service import Service
+
+    opts = webdriver.ChromeOptions()
+    opts.binary_location = chromium
+    for flag in ("--headless=new", "--no-sandbox", "--disable-gpu", "--disable-dev-shm-usage", "--no-first-run",
+                 "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                 "--window-size=1280,2000"):
+        opts.add_argument(flag)
+    opts.set_capability("goog:loggingPrefs", {"browser": "ALL"})
+    driver = webdriver.Chrome(service=Service(driver_bin), options=opts)
+    try:
+        driver.get((small_program["out"] / "deployment_summary.html").as_uri())
+        state = driver.execute_script("""
+            const imgs = Array.from(document.images);
+            return {ready: document.readyState, title: document.title,
+                    images: imgs.map(i => ({alt: i.alt, ok: i.complete && i.naturalWidth > 0, w: i.naturalWidth})),
+                    sections: Array.from(document.querySelectorAll('section h2')).map(h => h.textContent),
+                    width: document.documentElement.scrollWidth};
+        """)
+        driver.save_screenshot(str(small_program["out"].parent / "report_screenshot.png"))
+        logs = driver.get_log("browser")
+    finally:
+        driver.quit()
+    assert state["ready"] == "complete"
+    errors = [e for e in logs if e["level"] in ("SEVERE", "ERROR")]
+    assert errors == []
+    alts = [i["alt"] for i in state["images"]]
+    assert all(i["ok"] for i in state["images"]), state["images"]
+    assert any("kit type" in a and "Sites" in a for a in alts)  # the map
+    assert any("Monthly energy balance" in a for a in alts)
+    assert any("Cost against the number of kit types" in a for a in alts)
+    assert any("State of charge" in a for a in alts)
+    assert len(alts) >= 6
+    assert "Cautions" in state["sections"]

@@ -15,6 +15,8 @@ ROOT = Path(__file__).resolve().parents[1]
 
 def test_demo_copies_in_sites_equal_the_bundled_ones():
     assert filecmp.cmp(ROOT / "sites" / "demo_program.toml", default_config_path(), shallow=False)
+    assert filecmp.cmp(ROOT / "sites" / "demo_depots.csv", default_config_path().parent / "demo_depots.csv",
+                       shallow=False)
     for kind in KINDS:
         assert filecmp.cmp(ROOT / "sites" / "demo_components" / f"{kind}.csv",
                            default_library_path() / f"{kind}.csv", shallow=False)

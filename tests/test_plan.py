@@ -89,7 +89,7 @@ def _frames(config, groups, critical):
                          "max_load_w": [500.0], "chemistry": ["lead_acid"], "battery_ah": [80.0]})
     pairs = pd.DataFrame({"unit_idx": range(len(groups)), "kit_idx": 0, "site_idx": 0, "blocks": 1, "target": 0.05})
     sites = pd.DataFrame({f"households_t{t}": [1] for t in range(1, 6)})
-    return lambda metrics, cfg=config: evaluate(pairs, metrics, units, None, kits, cfg, sites)
+    return lambda metrics, cfg=config: evaluate(pairs, metrics, units, None, kits, cfg, sites, site_delivery_usd=np.zeros(1))
 
 
 def test_the_critical_load_target_is_enforced_on_its_own(config):

@@ -307,7 +307,8 @@ def _number_format_for(values) -> str:
 # --------------------------------------------------------------------------
 
 def write_bill_of_materials(path, bom_lines: pd.DataFrame, kit_counts: pd.DataFrame, *,
-                            spares_fraction: float, assumptions=None, cautions=None) -> Path:
+                            spares_fraction: float, assumptions=None, cautions=None,
+                            kit_specs: pd.DataFrame | None = None) -> Path:
     """Write the program's bill of materials workbook.
 
     Parameters
@@ -329,6 +330,10 @@ def write_bill_of_materials(path, bom_lines: pd.DataFrame, kit_counts: pd.DataFr
         Written to the ``assumptions`` sheet (``key``, ``value``, ``unit``).
     cautions : iterable of str, optional
         Added after the standard cautions on the ``cautions`` sheet.
+    kit_specs : pandas.DataFrame, optional
+        Kit specification table (``property`` with its unit, then one column
+        per kit; see :func:`fleet.outputs.kit_specifications`), written to the
+        ``kit_specs`` sheet.
 
     Returns
     -------
@@ -339,7 +344,8 @@ def write_bill_of_materials(path, bom_lines: pd.DataFrame, kit_counts: pd.DataFr
     -----
     Sheets: ``by_kit`` (editable: unit prices and the spares fraction are
     unlocked input cells, everything else is locked; protection has no
-    password), ``by_component``, ``by_depot``, ``assumptions``, ``cautions``.
+    password), ``by_component``, ``by_depot``, ``kit_specs`` (when given),
+    ``assumptions``, ``cautions``.
     On ``by_kit`` the header is on row ``BY_KIT_HEADER_ROW`` (zero-based) and
     the spares fraction in ``SPARES_FRACTION_CELL``::
 
@@ -394,6 +400,9 @@ def write_bill_of_materials(path, bom_lines: pd.DataFrame, kit_counts: pd.DataFr
         item_rows = _write_by_kit(workbook, formats, lines, kit_keys, kits_total, spares_fraction)
         _write_by_component(workbook, formats, lines, item_rows)
         _write_by_depot(workbook, formats, lines, counts)
+        if kit_specs is not None and len(kit_specs):
+            ws = workbook.add_worksheet("kit_specs")
+            _write_frame(ws, kit_specs, formats, freeze_columns=1, autofilter=False)
         table = normalise_assumptions(assumptions)
         if not (table["key"].astype(str) == "spares fraction").any():
             table = pd.concat([table, pd.DataFrame(

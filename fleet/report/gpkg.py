@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from pathlib import Path
 
 import geopandas as gpd
@@ -10,7 +11,7 @@ import pandas as pd
 
 from ._common import is_missing
 
-__all__ = ["write_sites_gpkg", "OUTPUT_CRS"]
+__all__ = ["write_sites_gpkg", "depot_layer_names", "OUTPUT_CRS"]
 
 #: Coordinate reference system of the written layers (WGS84 degrees).
 OUTPUT_CRS = "EPSG:4326"
@@ -73,9 +74,26 @@ def _safe_layer(frame: gpd.GeoDataFrame, what: str) -> gpd.GeoDataFrame:
     return layer
 
 
+def depot_layer_names(depots) -> dict[str, str]:
+    """A GeoPackage layer name per depot: ``depot_`` + the name with every character other than
+    ASCII letters, digits and ``_`` replaced by ``_`` (lower case), made unique with a suffix."""
+    names: dict[str, str] = {}
+    used: set[str] = {"sites", "depots"}
+    for depot in dict.fromkeys(_to_text(d) or "(none)" for d in depots):
+        base = "depot_" + (re.sub(r"[^0-9A-Za-z_]", "_", depot).strip("_").lower() or "unnamed")
+        name, i = base, 2
+        while name in used:
+            name, i = f"{base}_{i}", i + 1
+        used.add(name)
+        names[depot] = name
+    return names
+
+
 def write_sites_gpkg(path, sites_gdf: gpd.GeoDataFrame,
-                     depots_gdf: gpd.GeoDataFrame | None = None) -> Path:
-    """Write layer ``sites`` (and ``depots`` if given) to a GeoPackage.
+                     depots_gdf: gpd.GeoDataFrame | None = None, *, depot_column: str | None = "depot") -> Path:
+    """Write layer ``sites``, one layer per depot with that depot's sites (named by
+    :func:`depot_layer_names`; when ``depot_column`` is a column of the sites) and ``depots``
+    (if given) to a GeoPackage.
 
     Parameters
     ----------
@@ -98,6 +116,10 @@ def write_sites_gpkg(path, sites_gdf: gpd.GeoDataFrame,
     if path.exists():
         path.unlink()
     sites.to_file(path, layer="sites", driver="GPKG", engine="pyogrio")
+    if depot_column is not None and depot_column in sites.columns:
+        text = sites[depot_column].map(lambda v: _to_text(v) or "(none)")
+        for depot, layer in depot_layer_names(text).items():
+            sites[text == depot].to_file(path, layer=layer, driver="GPKG", engine="pyogrio", mode="a")
     if depots is not None:
         depots.to_file(path, layer="depots", driver="GPKG", engine="pyogrio", mode="a")
     return path

@@ -17,7 +17,8 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Patch
 from matplotlib.ticker import FuncFormatter, MaxNLocator, PercentFormatter
 
-__all__ = ["site_map", "reliability_histogram", "soc_trace", "cost_by_kit_type"]
+__all__ = ["site_map", "reliability_histogram", "soc_trace", "cost_by_kit_type", "cost_curves",
+           "monthly_energy_balance"]
 
 _WIDTH_IN, _HEIGHT_IN = 8.0, 4.5
 _MAX_LEGEND_ENTRIES = 20
@@ -232,4 +233,80 @@ def cost_by_kit_type(labels, capex, lifecycle,
     ax.legend(frameon=False)
     ax.grid(True, axis="y", linewidth=0.4, alpha=0.5)
     ax.set_axisbelow(True)
+    return fig
+
+
+def cost_curves(curves: pd.DataFrame, title: str = "Lifecycle cost of the catalogue") -> Figure:
+    """Lifecycle cost of the best catalogue against the number of kit types allowed and
+    against the energy target, one line per scheme (two panels).
+
+    Parameters
+    ----------
+    curves : DataFrame
+        As :func:`fleet.plan.cost_curves` returns: ``scheme``, ``varied`` ("kit types" or
+        "energy target (unmet fraction)"), ``value``, ``lifecycle cost with type costs (USD)``,
+        ``units served``, ``units in scheme``. Points that leave units without a kit are drawn
+        hollow (their cost is not comparable: fewer units are paid for).
+    """
+    fig = _new_figure(10.0, 4.2)
+    axes = fig.subplots(1, 2)
+    panels = (("kit types", axes[0], "kit types allowed in the catalogue (count)"),
+              ("energy target (unmet fraction)", axes[1], "energy target: largest unmet fraction (% of demand)"))
+    cost_col = "lifecycle cost with type costs (USD)"
+    colours = {"shs": "#4C72B0", "minigrid": "#DD8452"}
+    names = {"shs": "solar home systems", "minigrid": "minigrids"}
+    for varied, ax, xlabel in panels:
+        part = curves[curves.varied == varied] if len(curves) else curves
+        for scheme, g in part.groupby("scheme", sort=False) if len(part) else []:
+            g = g.sort_values("value")
+            full = (g["units served"] >= g["units in scheme"]).to_numpy()
+            colour = colours.get(scheme, "#55A868")
+            x = g["value"].to_numpy(dtype=float)
+            y = g[cost_col].to_numpy(dtype=float)
+            ax.plot(x, y, color=colour, linewidth=1.5, label=names.get(scheme, str(scheme)))
+            ax.scatter(x[full], y[full], color=colour, zorder=3, s=22)
+            ax.scatter(x[~full], y[~full], facecolors="white", edgecolors=colour, zorder=3, s=22,
+                       label=f"{names.get(scheme, scheme)}: some units without a kit" if (~full).any() else None)
+        ax.set_xlabel(xlabel)
+        ax.set_ylabel("lifecycle cost incl. type costs (USD)")
+        ax.yaxis.set_major_formatter(FuncFormatter(_thousands))
+        if varied == "kit types":
+            ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+        else:
+            ax.xaxis.set_major_formatter(PercentFormatter(xmax=1.0, decimals=0))
+        ax.grid(True, linewidth=0.4, alpha=0.5)
+        if ax.lines:
+            ax.legend(frameon=False, fontsize="small")
+    fig.suptitle(title)
+    return fig
+
+
+_MONTHS = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec")
+
+
+def monthly_energy_balance(monthly: pd.DataFrame, title: str = "Monthly energy balance") -> Figure:
+    """Where a month's energy came from and went: array energy used and spilled (left bars),
+    demand served and unmet (right bars), in kWh.
+
+    Parameters
+    ----------
+    monthly : DataFrame indexed by month (1..12) with ``pv_used_kwh``, ``pv_spilled_kwh``,
+        ``served_kwh`` and ``unmet_kwh`` (see :func:`fleet.outputs.monthly_balance`).
+    """
+    m = monthly.reindex(range(1, 13)).fillna(0.0)
+    fig = _new_figure(9.0, 4.2)
+    ax = fig.add_subplot()
+    x = np.arange(12)
+    w = 0.38
+    ax.bar(x - w / 2, m.pv_used_kwh, w, color="#E1B12C", label="array energy used")
+    ax.bar(x - w / 2, m.pv_spilled_kwh, w, bottom=m.pv_used_kwh, color="#F5DE9A", label="array energy spilled (battery full)")
+    ax.bar(x + w / 2, m.served_kwh, w, color="#4C72B0", label="demand served")
+    ax.bar(x + w / 2, m.unmet_kwh, w, bottom=m.served_kwh, color="#C44E52", label="demand unmet")
+    ax.set_xticks(x, _MONTHS)
+    ax.set_ylabel("energy (kWh per month)")
+    ax.yaxis.set_major_formatter(FuncFormatter(_thousands))
+    ax.grid(True, axis="y", linewidth=0.4, alpha=0.5)
+    ax.set_axisbelow(True)
+    ax.legend(frameon=False, fontsize="small", ncols=2, loc="upper center", bbox_to_anchor=(0.5, -0.1))
+    ax.set_title(title)
     return fig
