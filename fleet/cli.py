@@ -117,11 +117,16 @@ def cmd_plan(args: argparse.Namespace) -> int:
             loaded["weather_sources"] = {**monthly, **loaded.get("weather_sources", {})}
         except InputError as exc:
             problems += exc.problems
+    from .parallel import parse_scheduler
+    try:
+        parse_scheduler(args.scheduler)
+    except InputError as exc:
+        problems += exc.problems
     if problems:
         raise InputError(problems)
     progress.stage(f"read {len(loaded['sites'])} sites from {args.sites}")
     loaded["sites"].attrs["source"] = str(args.sites)
-    result = run_plan(loaded["sites"], loaded["components"], loaded["config"], tracker=progress,
+    result = run_plan(loaded["sites"], loaded["components"], loaded["config"], tracker=progress, scheduler=args.scheduler,
                       tier_profiles=loaded.get("profiles"), weather_sources=loaded.get("weather_sources"))
     progress.stage("writing outputs")
     from .components import default_library_path
@@ -136,6 +141,41 @@ def cmd_plan(args: argparse.Namespace) -> int:
     paths = write_run(result, out, tables=tables, inputs=inputs,
                       overwrite=args.overwrite, started=started)
     _print_summary(result, tables, paths, time.perf_counter() - started)
+    return 0
+
+
+def cmd_reprice(args: argparse.Namespace) -> int:
+    from .errors import InputError, Problem
+    from .outputs import plan_tables, write_run
+    from .reprice import load_state, read_price_edits, reprice_plan
+
+    started = time.perf_counter()
+    progress = _Progress(args.quiet)
+    workbook = Path(args.workbook)
+    run_dir = workbook.resolve().parent
+    out = Path(args.out) if args.out else run_dir.parent / f"{run_dir.name}-repriced-{time.strftime('%Y%m%d-%H%M%S')}"
+    if out.exists() and (not out.is_dir() or any(out.iterdir())) and not args.overwrite:
+        raise InputError([Problem(str(out), None, None, "already holds a run; choose another --out or pass --overwrite")])
+    if out.resolve() == run_dir:
+        raise InputError([Problem(str(out), None, None, "is the run being repriced; a repriced run goes in a new folder")])
+    if not workbook.is_file():
+        raise InputError([Problem(str(workbook), None, None, "file not found")])
+    progress.stage(f"reading the run in {run_dir}")
+    result = load_state(run_dir)
+    edits = read_price_edits(workbook, result.bom, max_change=args.max_change,
+                             accept_large_changes=args.accept_large_changes)
+    progress.stage(f"{len(edits.changed)} unit price(s) changed; choosing the catalogue again")
+    new, changes = reprice_plan(result, edits)
+    progress.stage("writing outputs")
+    tables = plan_tables(new)
+    paths = write_run(new, out, tables=tables, inputs={"workbook": workbook}, overwrite=args.overwrite,
+                      started=started, extra_tables={"changes": changes},
+                      record_extra={"repriced_from": str(run_dir)})
+    print(f"\nRepriced {run_dir.name}: {len(edits.changed)} price(s) changed")
+    for r in changes.itertuples(index=False):
+        if r.what != "unit price (USD)":
+            print(f"  {r.what}: {r.item}: {r.before!s} -> {r.after!s} {r.change}")
+    _print_summary(new, tables, paths, time.perf_counter() - started)
     return 0
 
 
@@ -289,6 +329,11 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         elif not csv.parent.is_dir():
             problems.append(Problem(str(csv), None, None, f"folder '{csv.parent}' does not exist"))
     loaded.update(_read_inputs(args, problems))
+    from .parallel import parse_scheduler
+    try:
+        parse_scheduler(args.scheduler)
+    except InputError as exc:
+        problems += exc.problems
     if problems:
         raise InputError(problems)
     sites, library, cfg = loaded["sites"], loaded["components"], loaded["config"]
@@ -309,7 +354,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         return 0
 
     try:
-        table = evaluate_kit(sites, library, cfg, args.kit, blocks=args.blocks, tracker=progress,
+        table = evaluate_kit(sites, library, cfg, args.kit, blocks=args.blocks, tracker=progress, scheduler=args.scheduler,
                              tier_profiles=loaded.get("profiles"), weather_sources=loaded.get("weather_sources"))
     except KitChoiceError as exc:
         option = "--blocks" if exc.option == "blocks" else "--kit"
@@ -386,6 +431,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", metavar="DIR", help="run folder to create (default: outputs/<sites>-<timestamp>)")
     p.add_argument("--overwrite", action="store_true", help="replace an existing run folder")
     p.add_argument("-q", "--quiet", action="store_true", help="no progress messages")
+    p.add_argument("--scheduler", metavar="WHERE", default="inprocess",
+                   help="where the per-site stages run: 'inprocess' (default), 'local:N' (N worker processes "
+                        "on this machine) or the address of a dask.distributed scheduler (tcp://host:8786); "
+                        "the plan is the same whichever way it runs")
     p.add_argument("--monthly-resource", metavar="FILE",
                    help="monthly irradiation per site (csv/xlsx: site_id, month, ghi_kwh_m2_day[, temp_mean_c, temp_min_c]) "
                         "used instead of the embedded resource at those sites")
@@ -416,7 +465,27 @@ def build_parser() -> argparse.ArgumentParser:
     e.add_argument("--csv", metavar="FILE", help="also write the table as CSV (one row per service unit)")
     e.add_argument("--list-kits", action="store_true", help="print the candidate kit ids with their labels and stop")
     e.add_argument("-q", "--quiet", action="store_true", help="no progress messages")
+    e.add_argument("--scheduler", metavar="WHERE", default="inprocess",
+                   help="where the sites are simulated: 'inprocess' (default), 'local:N' or a dask.distributed "
+                        "scheduler address (see 'fleet plan --help')")
     e.set_defaults(func=cmd_evaluate)
+
+    r = sub.add_parser(
+        "reprice", help="choose the catalogue again with prices filled in on a run's bill of materials",
+        description="Read the unit prices procurement filled in on a run's bill_of_materials.xlsx (in the run "
+                    "folder fleet plan wrote), check them (missing, not a number, negative, a component priced "
+                    "twice differently, or more than --max-change times the run's price: every such cell is "
+                    "listed by sheet and cell and nothing is guessed), choose the catalogue again with them "
+                    "(nothing is simulated again: prices do not change how a kit behaves) and write a new run "
+                    "folder whose deployment summary starts with a 'changes' sheet saying what changed and why.")
+    r.add_argument("workbook", help="bill_of_materials.xlsx inside a run folder written by fleet plan")
+    r.add_argument("--out", metavar="DIR", help="run folder to create (default: <run>-repriced-<timestamp>)")
+    r.add_argument("--overwrite", action="store_true", help="replace an existing run folder")
+    r.add_argument("--max-change", metavar="F", type=float, default=3.0,
+                   help="a price more than F times higher or lower than the run's is reported (default 3)")
+    r.add_argument("--accept-large-changes", action="store_true", help="take large price changes as meant")
+    r.add_argument("-q", "--quiet", action="store_true", help="no progress messages")
+    r.set_defaults(func=cmd_reprice)
     from .cli_resource import add_parser as add_resource_parser
     add_resource_parser(sub)
     return parser

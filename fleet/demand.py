@@ -18,6 +18,8 @@ References
 
 from __future__ import annotations
 
+import zlib
+
 from dataclasses import dataclass
 
 import numpy as np
@@ -461,8 +463,10 @@ def unit_loads(sites: pd.DataFrame, units: pd.DataFrame, settings: DemandSetting
         General and critical hourly loads (W, hourly means at the plant or
         kit output) and per-unit design figures.
     """
-    rng_root = np.random.SeedSequence(seed)
-    children = rng_root.spawn(len(units))
+    # one seed per unit from the program seed and the unit's id, so that a unit's loads do not
+    # depend on which other units are planned with it (chunks of sites give the same loads)
+    children = [np.random.SeedSequence([int(seed) % 2**32, zlib.crc32(str(uid).encode())])
+                for uid in units.unit_id]
     loads = np.zeros((len(units), HOURS_PER_YEAR), dtype=np.float32)
     crit = np.zeros((len(units), HOURS_PER_YEAR), dtype=np.float32)
     peaks = np.zeros(len(units))

@@ -26,7 +26,9 @@ import pandas as pd
 
 from .components import ComponentLibrary
 from .config import ProgramConfig
+from .demand import service_units
 from .dispatch import METRICS
+from .errors import InputError
 from .iv import tables_for_kits
 from .kits import candidate_kits, kernel_parameters
 from .plan import (_Quiet, array_losses, battery_temperature_c, build_demand, build_weather, design_conditions,
@@ -194,7 +196,8 @@ def find_kit(kits: pd.DataFrame, kit_id: str) -> int:
 
 def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: str, *, blocks: int | None = None,
                  tracker=None, tier_profiles: dict | None = None, weather_sources: dict | None = None,
-                 candidates: pd.DataFrame | None = None) -> pd.DataFrame:
+                 candidates: pd.DataFrame | None = None, scheduler: str | None = None,
+                 chunk_sites: int = 25) -> pd.DataFrame:
     """Metrics of one candidate kit (or minigrid block) at every service unit of its scheme.
 
     Parameters
@@ -216,6 +219,9 @@ def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: s
     candidates : DataFrame, optional
         :func:`candidate_kit_table` of the same sites, library and program, to
         reuse when evaluating several kits in turn (it takes seconds to build).
+    scheduler : str, optional
+        Where the sites are simulated, ``chunk_sites`` at a time (:mod:`fleet.parallel`);
+        the table is the same whichever way.
 
     Returns
     -------
@@ -234,9 +240,7 @@ def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: s
     if blocks is not None and (int(blocks) != blocks or blocks < 1):
         raise KitChoiceError(f"blocks must be a whole number >= 1, got {blocks}", option="blocks")
 
-    tracker.stage("demand")
-    units, demand = build_demand(sites, cfg, tier_profiles)
-    design = demand.design
+    units = service_units(sites)
 
     # the kit list needs the weather only where a measured year sets the cold design temperature;
     # otherwise an unknown kit is reported before the weather is built
@@ -256,22 +260,57 @@ def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: s
     tables = tables_for_kits(kit, library)
     params = kernel_parameters(kit, tables, reconnect_hysteresis_soc=cfg["system"]["reconnect_hysteresis_soc"],
                                pv_losses_fraction=array_losses(cfg))
-    if weather is None:
-        tracker.stage("weather")
-        weather = build_weather(sites, cfg, tracker, weather_sources)
+    from .parallel import runner, site_chunks
 
+    n_mine = int((units.scheme == scheme).sum())
+    tracker.stage(f"simulating {kit.kit_id.iat[0]} at {n_mine} unit(s) x {cfg['program']['weather_years']} years")
+    if n_mine == 0:
+        return _with_other_scheme_sites(pd.DataFrame(columns=list(COLUMNS)), sites, scheme, kit.kit_id.iat[0])
+    chunks = site_chunks(len(sites), chunk_sites)
+    with runner(scheduler) as run:
+        parts = run.map(evaluate_kit_chunk, chunks, tracker=tracker, desc="site chunks", sites=sites, kit=kit,
+                        params=params, tables=tables, cfg=cfg, blocks=blocks, tier_profiles=tier_profiles,
+                        weather_sources=weather_sources, numba_threads=None if run.name == "inprocess" else 1)
+    problems = [p for part in parts for p in part[2]]
+    if problems:
+        raise InputError(problems)
+    chunk_units = pd.concat([part[0] for part in parts], ignore_index=True)
+    ev = pd.concat([part[1] for part in parts if len(part[1])], ignore_index=True)
+    rows = _table(ev, chunk_units, kit, cfg)
+    return _with_other_scheme_sites(rows, sites, scheme, kit.kit_id.iat[0])
+
+
+def evaluate_kit_chunk(positions, *, sites, kit, params, tables, cfg: ProgramConfig, blocks=None, tier_profiles=None,
+                       weather_sources=None, numba_threads: int | None = None):
+    """One kit at the service units of its scheme at the sites at ``positions``: (units with their
+    design demand, option metrics as :func:`fleet.plan.evaluate` gives them with ``blocks_basis``,
+    input problems). Independent of other sites, so chunks may run anywhere (:mod:`fleet.parallel`)."""
+    import numba
+
+    pos = np.asarray(list(positions), dtype=np.int64)
+    sub = sites.iloc[pos].reset_index(drop=True)
+    units, demand = build_demand(sub, cfg, tier_profiles)
+    design = demand.design
+    scheme = str(kit.scheme.iat[0])
     mine = units.index[units.scheme == scheme].to_numpy()
-    site_target = sites["reliability_target"].to_numpy(dtype=float)
+    if len(mine) == 0:
+        return units.iloc[0:0], pd.DataFrame(), []
+    sources = {k: v for k, v in (weather_sources or {}).items() if k in set(sub.site_id.astype(str))}
+    try:
+        weather = build_weather(sub, cfg, None, sources, positions=pos)
+    except InputError as exc:
+        return units.iloc[0:0], pd.DataFrame(), list(exc.problems)
+    site_target = sub["reliability_target"].to_numpy(dtype=float)
     target = np.where(np.isfinite(site_target), site_target, cfg["program"]["reliability_target"])
     unit_params = unit_parameters(units, cfg)
-    t_batt = battery_temperature_c(sites, cfg, weather.info)
+    t_batt = battery_temperature_c(sub, cfg, weather.info)
 
     def run(unit_idx: np.ndarray, counts: np.ndarray) -> pd.DataFrame:
         s_idx = units.site_index.to_numpy()[unit_idx]
         pairs = pd.DataFrame({"unit_idx": unit_idx, "kit_idx": 0, "site_idx": s_idx,
                               "blocks": np.asarray(counts, int), "target": target[s_idx]})
-        metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, tracker, t_batt)
-        ev = evaluate(pairs, metrics, units, design, kit, cfg, sites, weather.info)
+        metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, _Quiet(), t_batt)
+        ev = evaluate(pairs, metrics, units, design, kit, cfg, sub, weather.info)
         b = pairs.blocks.to_numpy(float)
         m = {name: metrics[:, :, j].mean(axis=1) for j, name in enumerate(METRICS)}
         ev["pv_available_kwh_year"] = m["pv_bus_wh"] / 1000.0 * b
@@ -282,17 +321,18 @@ def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: s
             ev[col] = ev[col] * b
         return ev
 
-    tracker.stage(f"simulating {kit.kit_id.iat[0]} at {len(mine)} unit(s) x {cfg['program']['weather_years']} years")
-    if len(mine) == 0:
-        return _with_other_scheme_sites(pd.DataFrame(columns=list(COLUMNS)), sites, scheme, kit.kit_id.iat[0])
-    if scheme == "shs" or blocks is not None:
-        ev = run(mine, np.full(len(mine), 1 if blocks is None else int(blocks)))
-        basis = "one kit per member" if scheme == "shs" else "given"
-        ev["blocks_basis"] = basis
-    else:
-        ev = _smallest_block_counts(run, mine)
-    rows = _table(ev, units, kit, cfg)
-    return _with_other_scheme_sites(rows, sites, scheme, kit.kit_id.iat[0])
+    old_threads = numba.get_num_threads()
+    if numba_threads:
+        numba.set_num_threads(min(int(numba_threads), numba.config.NUMBA_NUM_THREADS))
+    try:
+        if scheme == "shs" or blocks is not None:
+            ev = run(mine, np.full(len(mine), 1 if blocks is None else int(blocks)))
+            ev["blocks_basis"] = "one kit per member" if scheme == "shs" else "given"
+        else:
+            ev = _smallest_block_counts(run, mine)
+    finally:
+        numba.set_num_threads(old_threads)
+    return units.loc[mine].reset_index(drop=True), ev, []
 
 
 def _smallest_block_counts(run, mine: np.ndarray) -> pd.DataFrame:

@@ -3,6 +3,13 @@ reliability and cost → catalogue → plan tables.
 
 This module composes the core; it reads no files and prints nothing. Long
 stages report through an optional ``tracker`` (the CLI passes progress bars).
+
+The stages that work site by site (demand, weather years, the options to simulate,
+dispatch, the options' metrics and costs) run on chunks of sites
+(:func:`plan_site_chunk`), in this process or on a Dask cluster
+(:mod:`fleet.parallel`); only the options' metrics come back, so memory is bounded
+by the chunk, not the program. The catalogue stage (:func:`choose_catalogue`) then
+works on every option of the program.
 """
 
 from __future__ import annotations
@@ -77,6 +84,11 @@ class PlanResult:
     cost_curves: pd.DataFrame = field(default_factory=pd.DataFrame)
     kit_params: np.ndarray | None = None  # kernel parameters of ``kits``, row for row
     transport: pd.DataFrame = field(default_factory=pd.DataFrame)  # per site: depot, km, delivery USD
+    screened: pd.DataFrame = field(default_factory=pd.DataFrame)  # options not simulated, with the reason
+    kit_tables: Any = None  # fleet.iv.KitTables of ``kits``
+    tier_profiles: dict | None = None
+    weather_sources: dict | None = None
+    scheduler: str = "inprocess"
 
 
 def array_losses(cfg: ProgramConfig) -> float:
@@ -90,9 +102,10 @@ def site_seed(seed: int, site_id: str) -> int:
     return (int(seed) * 1_000_003 + zlib.crc32(str(site_id).encode())) % (2**32)
 
 
-def build_weather(sites, cfg: ProgramConfig, tracker=None, weather_sources=None) -> Weather:
+def build_weather(sites, cfg: ProgramConfig, tracker=None, weather_sources=None, positions=None) -> Weather:
     """Weather years for every site: its own weather data where given, else the embedded grid
-    (raises InputError for sites off the data)."""
+    (raises InputError for sites off the data). ``positions``: the sites' positions in the user's
+    table when ``sites`` is a part of it (for the row numbers of problems)."""
     tracker = tracker or _Quiet()
     weather_sources = weather_sources or {}
     n_years = cfg["program"]["weather_years"]
@@ -114,7 +127,7 @@ def build_weather(sites, cfg: ProgramConfig, tracker=None, weather_sources=None)
                                   albedo=pvc["albedo"], max_distance_km=r["max_distance_km"],
                                   tilt_deg=pvc.get("tilt_deg"), azimuth_deg=pvc.get("azimuth_deg"))
         except ValueError as exc:
-            problems.append(Problem(label, i + 2, "latitude", f"site {s.site_id}: {exc}"))
+            problems.append(Problem(label, (i if positions is None else int(positions[i])) + 2, "latitude", f"site {s.site_id}: {exc}"))
             continue
         poa[i] = w.poa_wm2
         tc[i] = w.cell_temp_c
@@ -262,6 +275,53 @@ def battery_temperature_c(sites, cfg: ProgramConfig, weather_info: pd.DataFrame 
     return mean + offset
 
 
+def option_costs(kit_rows: pd.DataFrame, battery_life_years, delivery_usd, cfg: ProgramConfig):
+    """Present values (USD) per kit or block of options: lifecycle cost, of which salvage credit
+    and transport. ``kit_rows`` are the options' kits (``capex_usd``, ``battery_capex_usd``,
+    ``controller_capex_usd``, ``inverter_capex_usd``), ``delivery_usd`` one delivery to the
+    option's site (a battery replacement travels at ``transport.battery_replacement_share`` of it)."""
+    e = cfg["economics"]
+    p = cfg["program"]
+    life = np.asarray(battery_life_years, dtype=float)
+    delivery = np.asarray(delivery_usd, dtype=float)
+    battery_delivery = cfg["transport"]["battery_replacement_share"] * delivery
+    parts = (kit_rows.capex_usd.to_numpy(float), kit_rows.battery_capex_usd.to_numpy(float), life,
+             kit_rows.controller_capex_usd.to_numpy(float), kit_rows.inverter_capex_usd.to_numpy(float))
+    lives = dict(horizon_years=p["horizon_years"], rate=p["discount_rate"],
+                 controller_life_years=e["controller_life_years"], inverter_life_years=e["inverter_life_years"])
+    lcc_one = economics.lifecycle_cost(*parts, om_fraction=e["om_fraction_per_year"],
+                                       array_life_years=e["array_life_years"], delivery_usd=delivery,
+                                       battery_delivery_usd=battery_delivery, **lives)
+    salvage_one = economics.kit_salvage_present_value(*parts, array_life_years=e["array_life_years"], **lives)
+    transport_one = economics.transport_present_value(delivery, battery_delivery, life, p["horizon_years"],
+                                                      p["discount_rate"])
+    return lcc_one, salvage_one, transport_one
+
+
+def reprice_evaluations(ev: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
+                        site_delivery: pd.DataFrame | None) -> pd.DataFrame:
+    """The options of ``ev`` (from :func:`evaluate`) with their capex and lifecycle costs computed
+    again from ``kits`` (new prices); reliability, battery life and energy are unchanged.
+    ``site_delivery`` is the run's per-site transport table (``site_id``, ``delivery_usd``)."""
+    out = ev.copy()
+    k = kits.set_index("kit_id").loc[ev.kit_id.to_numpy()].reset_index()
+    if site_delivery is not None and len(site_delivery):
+        delivery = ev.site_id.map(site_delivery.set_index("site_id").delivery_usd).fillna(0.0).to_numpy(float)
+    else:
+        delivery = np.zeros(len(ev))
+    lcc_one, salvage_one, transport_one = option_costs(k, ev.battery_life_years.to_numpy(float), delivery, cfg)
+    mult = ev["count"].to_numpy(float) * ev.blocks.to_numpy(float)
+    out["capex_usd"] = k.capex_usd.to_numpy(float) * mult
+    out["lifecycle_cost_usd"] = lcc_one * mult
+    out["transport_usd"] = transport_one * mult
+    out["salvage_usd"] = salvage_one * mult
+    p = cfg["program"]
+    out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
+        lcc_one * ev.blocks.to_numpy(float), ev.served_kwh_year_per_kit.to_numpy(float), p["horizon_years"],
+        p["discount_rate"])
+    return out
+
+
 def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=None,
              site_delivery_usd=None) -> pd.DataFrame:
     """Reliability, service and lifecycle cost of every simulated option.
@@ -276,9 +336,10 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     """
     m = {name: metrics[:, :, j] for j, name in enumerate(dispatch.METRICS)}
     q = cfg["program"]["target_confidence"]
-    unmet_frac = _ratio(m["unmet_wh"], m["demand_wh"])
-    crit_frac = _ratio(m["critical_unmet_wh"], m["critical_demand_wh"])
-    defer_frac = _ratio(m["deferrable_demand_wh"] - m["deferrable_served_wh"], m["deferrable_demand_wh"])
+    # fractions of energy: sums of float32 hourly loads leave rounding dust (~1e-20) either side of 0
+    unmet_frac = np.clip(_ratio(m["unmet_wh"], m["demand_wh"]), 0.0, 1.0)
+    crit_frac = np.clip(_ratio(m["critical_unmet_wh"], m["critical_demand_wh"]), 0.0, 1.0)
+    defer_frac = np.clip(_ratio(m["deferrable_demand_wh"] - m["deferrable_served_wh"], m["deferrable_demand_wh"]), 0.0, 1.0)
     k = kits.iloc[pairs.kit_idx.to_numpy()].reset_index(drop=True)
     u = units.iloc[pairs.unit_idx.to_numpy()].reset_index(drop=True)
     blocks = pairs.blocks.to_numpy(dtype=float)
@@ -296,24 +357,13 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
         rows = chem == name
         calendar[rows] = battery.calendar_life_at(k.calendar_life_years.to_numpy()[rows], temp_batt[rows], name)
     life = battery.life_from_damage(m["cycle_damage"].mean(axis=1), calendar)
-    e = cfg["economics"]
     p = cfg["program"]
     depots = getattr(cfg, "depots", None)
     if site_delivery_usd is None and sites is not None and depots is not None:
         site_delivery_usd = transport.site_transport(sites, depots, cfg["transport"]).delivery_usd.to_numpy()
     delivery = (np.asarray(site_delivery_usd, dtype=float)[pairs.site_idx.to_numpy()]
                 if site_delivery_usd is not None else np.zeros(len(pairs)))
-    battery_delivery = cfg["transport"]["battery_replacement_share"] * delivery
-    parts = (k.capex_usd.to_numpy(), k.battery_capex_usd.to_numpy(), life, k.controller_capex_usd.to_numpy(),
-             k.inverter_capex_usd.to_numpy())
-    lives = dict(horizon_years=p["horizon_years"], rate=p["discount_rate"],
-                 controller_life_years=e["controller_life_years"], inverter_life_years=e["inverter_life_years"])
-    lcc_one = economics.lifecycle_cost(*parts, om_fraction=e["om_fraction_per_year"],
-                                       array_life_years=e["array_life_years"], delivery_usd=delivery,
-                                       battery_delivery_usd=battery_delivery, **lives)
-    salvage_one = economics.kit_salvage_present_value(*parts, array_life_years=e["array_life_years"], **lives)
-    transport_one = economics.transport_present_value(delivery, battery_delivery, life, p["horizon_years"],
-                                                      p["discount_rate"])
+    lcc_one, salvage_one, transport_one = option_costs(k, life, delivery, cfg)
     served_kwh_year = m["served_wh"].mean(axis=1) / 1000.0 * blocks
     out = pd.DataFrame({
         "unit_id": u.unit_id, "site_id": u.site_id, "scheme": u.scheme, "group": u.group,
@@ -548,67 +598,95 @@ def build_demand(sites, cfg: ProgramConfig, tier_profiles: dict | None = None):
     return pd.concat([units, demand.design], axis=1), demand
 
 
-def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
-             tier_profiles: dict | None = None, weather_sources: dict | None = None) -> PlanResult:
-    """Plan a program end to end; see the module docstring.
+#: Sites per chunk of the per-site stages (weather, array power, dispatch, option metrics):
+#: about 35 MB of weather and at most a few hundred MB of array power per chunk at 10 years.
+CHUNK_SITES = 25
 
-    ``tier_profiles`` (from :func:`fleet.profiles.read_tier_profiles`) replaces
-    the built-in hourly profiles of the tiers it names; ``weather_sources``
-    (site_id -> measured year or monthly climate, from
-    :mod:`fleet.weather_files`) replaces the embedded resource at those sites.
-    """
-    tracker = tracker or _Quiet()
-    timings: dict[str, float] = {}
-    warnings: list[str] = []
-    t = time.perf_counter()
 
-    tracker.stage("demand")
-    units, demand = build_demand(sites, cfg, tier_profiles)
-    design = demand.design
-    timings["demand"] = time.perf_counter() - t
+def _design_conditions_for(sites, cfg: ProgramConfig, weather_sources) -> DesignConditions:
+    """:func:`design_conditions` of the whole program, building the weather of only the sites whose
+    measured year sets their cold design temperature (those without ``design_temp_min_c``)."""
+    info = None
+    if weather_sources:
+        from .weather_files import MeasuredYear
+        blank = ~np.isfinite(sites["design_temp_min_c"].to_numpy(dtype=float))
+        need = [i for i in np.flatnonzero(blank)
+                if isinstance(weather_sources.get(str(sites.site_id.iat[i])), MeasuredYear)]
+        if need:
+            part = build_weather(sites.iloc[need].reset_index(drop=True), cfg, weather_sources=weather_sources,
+                                 positions=need).info
+            info = pd.DataFrame({"temp_air_min_c": np.nan, "weather_source_kind": "embedded"}, index=range(len(sites)))
+            info.loc[need, "temp_air_min_c"] = part.temp_air_min_c.to_numpy()
+            info.loc[need, "weather_source_kind"] = part.weather_source_kind.to_numpy()
+    return design_conditions(sites, cfg, info)
 
-    t = time.perf_counter()
-    tracker.stage("weather")
-    weather = build_weather(sites, cfg, tracker, weather_sources)
-    timings["weather"] = time.perf_counter() - t
-    n_default = int(weather.info.temp_mean_default.sum())
-    if n_default:
-        ids = ", ".join(weather.info.site_id[weather.info.temp_mean_default].head(10))
-        warnings.append(f"{n_default} site(s) have no temp_mean_c; the program default "
-                        f"{cfg['temperature']['default_mean_c']} degC was used ({ids}{', ...' if n_default > 10 else ''}).")
-    for r in weather.info[~weather.info.climate_cell_is_own].itertuples(index=False):
-        warnings.append(f"site {r.site_id}: its own resource grid cell has no data; the nearest cell with data, "
-                        f"{r.climate_cell_distance_km:.0f} km away, was used.")
-    measured = weather.info[(weather.info.weather_source_kind == "measured") & (weather.info.weather_data_distance_km > 50)]
-    for r in measured.itertuples(index=False):
-        warnings.append(f"site {r.site_id}: its weather file's station is {r.weather_data_distance_km:.0f} km away.")
 
-    t = time.perf_counter()
-    tracker.stage("kits")
-    s = cfg["system"]
-    cond = design_conditions(sites, cfg, weather.info)
-    kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
-    warnings += [f"component library: {n}" for n in library.notes]
-    tables = tables_for_kits(kits, library)
-    params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
-                               pv_losses_fraction=array_losses(cfg))
-    pairs, screened = build_pairs(units, design, kits, weather, sites, cfg)
-    timings["kits"] = time.perf_counter() - t
+@dataclass
+class SiteChunk:
+    """What the per-site stages give for a chunk of sites (positions ``first``..): units with
+    their design demand, weather summary, options simulated and screened, and their metrics."""
 
-    t = time.perf_counter()
-    tracker.stage(f"dispatch ({len(pairs)} options x {cfg['program']['weather_years']} years)")
-    unit_params = unit_parameters(units, cfg)
-    metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, tracker,
-                               battery_temperature_c(sites, cfg, weather.info))
-    timings["dispatch"] = time.perf_counter() - t
+    first: int
+    units: pd.DataFrame
+    info: pd.DataFrame
+    pairs: pd.DataFrame
+    screened: pd.DataFrame
+    evaluations: pd.DataFrame
+    problems: list
+    seconds: dict
 
-    t = time.perf_counter()
-    tracker.stage("catalogue")
-    delivery = transport.site_transport(sites, getattr(cfg, "depots", None), cfg["transport"])
-    warnings += transport.depot_warnings(delivery, getattr(cfg, "depots", None),
-                                         getattr(cfg, "depots_note", ""))
-    ev = evaluate(pairs, metrics, units, design, kits, cfg, sites, weather.info,
-                  site_delivery_usd=delivery.delivery_usd.to_numpy())
+
+def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfig, delivery_usd,
+                    tier_profiles=None, weather_sources=None, numba_threads: int | None = None) -> SiteChunk:
+    """The per-site stages for the sites at ``positions`` (consecutive): demand, weather years,
+    the options to simulate (:func:`build_pairs`), dispatch (:func:`simulate_chunked`) and the
+    options' metrics and costs (:func:`evaluate`). Every result depends only on these sites and
+    the program, so chunks can run anywhere and in any order (:mod:`fleet.parallel`). Input
+    problems (a site off the resource data) are returned, not raised, so that all are reported."""
+    import numba
+
+    pos = np.asarray(list(positions), dtype=np.int64)
+    seconds: dict[str, float] = {}
+    old_threads = numba.get_num_threads()
+    if numba_threads:
+        numba.set_num_threads(min(int(numba_threads), numba.config.NUMBA_NUM_THREADS))
+    try:
+        t = time.perf_counter()
+        sub = sites.iloc[pos].reset_index(drop=True)
+        units, demand = build_demand(sub, cfg, tier_profiles)
+        seconds["demand"] = time.perf_counter() - t
+        t = time.perf_counter()
+        sources = {k: v for k, v in (weather_sources or {}).items() if k in set(sub.site_id.astype(str))}
+        try:
+            weather = build_weather(sub, cfg, None, sources, positions=pos)
+        except InputError as exc:
+            return SiteChunk(int(pos[0]), units.iloc[0:0], pd.DataFrame(), pd.DataFrame(), pd.DataFrame(),
+                             pd.DataFrame(), list(exc.problems), seconds)
+        seconds["weather"] = time.perf_counter() - t
+        t = time.perf_counter()
+        pairs, screened = build_pairs(units, demand.design, kits, weather, sub, cfg)
+        seconds["options"] = time.perf_counter() - t
+        t = time.perf_counter()
+        metrics = simulate_chunked(weather, demand, unit_parameters(units, cfg), params, tables, pairs, _Quiet(),
+                                   battery_temperature_c(sub, cfg, weather.info))
+        seconds["dispatch"] = time.perf_counter() - t
+        t = time.perf_counter()
+        ev = evaluate(pairs, metrics, units, demand.design, kits, cfg, sub, weather.info,
+                      site_delivery_usd=np.asarray(delivery_usd, float)[pos])
+        info = weather.info.assign(design_month_sun_hours=rule_of_thumb.design_month_sun_hours(weather.poa_wm2))
+        seconds["metrics"] = time.perf_counter() - t
+    finally:
+        numba.set_num_threads(old_threads)
+    units = units.assign(site_index=pos[units.site_index.to_numpy()])
+    pairs = pairs.assign(site_idx=pos[pairs.site_idx.to_numpy()])
+    return SiteChunk(int(pos[0]), units, info, pairs, screened, ev, [], seconds)
+
+
+def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
+                     screened: pd.DataFrame, sun_hours: pd.Series) -> dict:
+    """The catalogue stage on the options' metrics and costs: feasible options, the integer
+    program per scheme, reasons for units without a kit, the comparisons (custom per unit, rule of
+    thumb, one kit for all) and the cost curves. Returns a dict of those (and ``warnings``)."""
     options = catalogue_options(ev)
     catalogues = {}
     c = cfg["catalogue"]
@@ -619,23 +697,114 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
             max_types=c[f"max_kit_types_{scheme}"], cost_per_type_usd=c["cost_per_kit_type_usd"],
             solver=c["solver"], time_limit_s=c["time_limit_s"])
     unserved = explain_unserved(units, ev, screened, catalogues, options, cfg)
-    sun = pd.Series(rule_of_thumb.design_month_sun_hours(weather.poa_wm2), index=weather.info.site_id.to_numpy())
     comparisons = compare(ev, options, units, catalogues, cfg,
-                          thumb=rule_of_thumb.choose(ev, units, kits, sun) if len(ev) else None)
+                          thumb=rule_of_thumb.choose(ev, units, kits, sun_hours) if len(ev) else None)
     curves = cost_curves(ev, units, cfg, solved=catalogues)
-    timings["catalogue"] = time.perf_counter() - t
+    warnings = []
     for scheme, res in catalogues.items():
         if res.gap > 0.01:
             warnings.append(f"{scheme} catalogue: gap to the LP bound is {res.gap:.1%} ({res.status}).")
     if len(unserved):
         warnings.append(f"{len(unserved)} service unit(s) have no kit; see the 'unserved' table for reasons.")
+    return {"options": options, "catalogues": catalogues, "unserved": unserved, "comparisons": comparisons,
+            "cost_curves": curves, "warnings": warnings}
 
-    result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=catalogues,
-                        comparisons=comparisons, unserved=unserved, weather=weather, demand=demand,
-                        cost_curves=curves, kit_params=params, transport=delivery,
-                        unit_params=unit_params, options=options,
+
+def _weather_warnings(info: pd.DataFrame, cfg: ProgramConfig) -> list[str]:
+    warnings = []
+    n_default = int(info.temp_mean_default.sum())
+    if n_default:
+        ids = ", ".join(info.site_id[info.temp_mean_default].head(10))
+        warnings.append(f"{n_default} site(s) have no temp_mean_c; the program default "
+                        f"{cfg['temperature']['default_mean_c']} degC was used ({ids}{', ...' if n_default > 10 else ''}).")
+    for r in info[~info.climate_cell_is_own].itertuples(index=False):
+        warnings.append(f"site {r.site_id}: its own resource grid cell has no data; the nearest cell with data, "
+                        f"{r.climate_cell_distance_km:.0f} km away, was used.")
+    measured = info[(info.weather_source_kind == "measured") & (info.weather_data_distance_km > 50)]
+    for r in measured.itertuples(index=False):
+        warnings.append(f"site {r.site_id}: its weather file's station is {r.weather_data_distance_km:.0f} km away.")
+    return warnings
+
+
+def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
+             tier_profiles: dict | None = None, weather_sources: dict | None = None,
+             scheduler: str | None = None, chunk_sites: int = CHUNK_SITES) -> PlanResult:
+    """Plan a program end to end; see the module docstring.
+
+    ``tier_profiles`` (from :func:`fleet.profiles.read_tier_profiles`) replaces
+    the built-in hourly profiles of the tiers it names; ``weather_sources``
+    (site_id -> measured year or monthly climate, from
+    :mod:`fleet.weather_files`) replaces the embedded resource at those sites.
+    ``scheduler`` says where the per-site stages run (:mod:`fleet.parallel`: in this
+    process by default, ``"local:N"`` or a ``dask.distributed`` scheduler address); they run
+    ``chunk_sites`` sites at a time, so memory is bounded by the chunk, not the program. The
+    plan is the same whichever way it ran.
+    """
+    from .parallel import runner, site_chunks
+
+    tracker = tracker or _Quiet()
+    timings: dict[str, float] = {}
+    warnings: list[str] = []
+
+    t = time.perf_counter()
+    tracker.stage("kits")
+    s = cfg["system"]
+    cond = _design_conditions_for(sites, cfg, weather_sources)
+    kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
+    warnings += [f"component library: {n}" for n in library.notes]
+    tables = tables_for_kits(kits, library)
+    params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
+                               pv_losses_fraction=array_losses(cfg))
+    delivery = transport.site_transport(sites, getattr(cfg, "depots", None), cfg["transport"])
+    warnings += transport.depot_warnings(delivery, getattr(cfg, "depots", None), getattr(cfg, "depots_note", ""))
+    timings["kits"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    chunks = site_chunks(len(sites), chunk_sites)
+    with runner(scheduler) as run:
+        tracker.stage(f"sites: demand, weather, dispatch and metrics, {len(chunks)} chunk(s) of up to "
+                      f"{chunk_sites} sites, {cfg['program']['weather_years']} years ({run.name})")
+        parts = run.map(plan_site_chunk, chunks, tracker=tracker, desc="site chunks",
+                        sites=sites, kits=kits, params=params, tables=tables, cfg=cfg,
+                        delivery_usd=delivery.delivery_usd.to_numpy(), tier_profiles=tier_profiles,
+                        weather_sources=weather_sources, numba_threads=None if run.name == "inprocess" else 1)
+        scheduler_name = run.name
+    problems = [p for part in parts for p in part.problems]
+    if problems:
+        raise InputError(problems)
+    for part in parts:
+        for k, v in part.seconds.items():
+            timings[f"sites: {k} (summed over chunks)"] = timings.get(f"sites: {k} (summed over chunks)", 0.0) + v
+    # units and options numbered across the program, in site order
+    offsets = np.cumsum([0] + [len(p.units) for p in parts[:-1]])
+    units = pd.concat([p.units for p in parts], ignore_index=True)
+    pairs = pd.concat([p.pairs.assign(unit_idx=p.pairs.unit_idx + o) for p, o in zip(parts, offsets)],
+                      ignore_index=True)
+    screened = pd.concat([p.screened for p in parts], ignore_index=True)
+    ev = pd.concat([p.evaluations for p in parts], ignore_index=True)
+    ev["pair"] = np.arange(len(ev))
+    info = pd.concat([p.info for p in parts], ignore_index=True)
+    timings["sites"] = time.perf_counter() - t
+    warnings += _weather_warnings(info, cfg)
+
+    t = time.perf_counter()
+    tracker.stage(f"catalogue ({len(ev):,} options simulated)")
+    sun = pd.Series(info.design_month_sun_hours.to_numpy(), index=info.site_id.to_numpy())
+    cat = choose_catalogue(ev, units, kits, cfg, screened, sun)
+    warnings += cat["warnings"]
+    timings["catalogue"] = time.perf_counter() - t
+
+    t = time.perf_counter()
+    weather = Weather(np.zeros((0, 0, HOURS_PER_YEAR), np.float32), np.zeros((0, 0, HOURS_PER_YEAR), np.float32), info)
+    result = PlanResult(sites=sites, units=units, kits=kits, bom=bom, evaluations=ev, catalogues=cat["catalogues"],
+                        comparisons=cat["comparisons"], unserved=cat["unserved"], weather=weather, demand=None,
+                        cost_curves=cat["cost_curves"], kit_params=params, transport=delivery,
+                        unit_params=unit_parameters(units, cfg), options=cat["options"], screened=screened,
+                        kit_tables=tables, tier_profiles=tier_profiles, weather_sources=weather_sources,
+                        scheduler=scheduler_name,
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
     result.traces = representative_traces(result, params, tables)
+    timings["traces"] = time.perf_counter() - t
     return result
 
 
@@ -695,6 +864,16 @@ def assigned_options(result: PlanResult) -> pd.DataFrame:
     return pd.concat(parts, ignore_index=True) if parts else opts.iloc[0:0]
 
 
+def site_hourly_inputs(result: PlanResult, site_pos: int):
+    """Weather years and the service units' hourly demand of one site of a plan, built again
+    (both are seeded per site, so they are the ones the plan simulated): (Weather, units, UnitDemand)."""
+    sub = result.sites.iloc[[int(site_pos)]].reset_index(drop=True)
+    sources = {k: v for k, v in (result.weather_sources or {}).items() if k == str(sub.site_id.iat[0])}
+    weather = build_weather(sub, result.config, None, sources, positions=[int(site_pos)])
+    units, demand = build_demand(sub, result.config, result.tier_profiles)
+    return weather, units, demand
+
+
 def representative_traces(result: PlanResult, params: np.ndarray, tables) -> dict[str, dict]:
     """A year of state of charge at a median site per scheme, in its design weather year."""
     out = {}
@@ -706,20 +885,22 @@ def representative_traces(result: PlanResult, params: np.ndarray, tables) -> dic
             continue
         row = sel.iloc[(sel.unmet_fraction_design - sel.unmet_fraction_design.median()).abs().argsort().iloc[0]]
         pair = ev.loc[row.pair]
-        u_idx = int(result.units.index[result.units.unit_id == row.unit_id][0])
-        k_idx = int(result.kits.index[result.kits.kit_id == row.kit_id][0])
-        s_idx = int(result.units.site_index.iat[u_idx])
-        years = result.weather.poa_wm2.shape[1]
-        pv = array_power_per_string(result.weather.poa_wm2, result.weather.cell_temp_c, tables, [s_idx],
+        k_idx = int(np.flatnonzero(result.kits.kit_id.to_numpy() == row.kit_id)[0])
+        s_idx = int(result.units.site_index.to_numpy()[result.units.unit_id.to_numpy() == row.unit_id][0])
+        weather, units, demand = site_hourly_inputs(result, s_idx)
+        u_idx = int(np.flatnonzero(units.unit_id.to_numpy() == row.unit_id)[0])
+        unit_params = unit_parameters(units, result.config)
+        years = weather.poa_wm2.shape[1]
+        pv = array_power_per_string(weather.poa_wm2, weather.cell_temp_c, tables, [0],
                                     [int(tables.table_index[k_idx])])[0]
         t_batt = float(battery_temperature_c(result.sites, result.config, result.weather.info)[s_idx])
         # the design year is the year whose unmet fraction is the design quantile
         unmet = []
         for y in range(years):
-            up = result.unit_params[u_idx]
-            tr = dispatch.simulate_trace(pv[y], result.demand.general_w[u_idx], params[k_idx],
+            up = unit_params[u_idx]
+            tr = dispatch.simulate_trace(pv[y], demand.general_w[u_idx], params[k_idx],
                                          battery_temp_c=t_batt, scale=float(pair.blocks),
-                                         critical_w=result.demand.critical_w[u_idx], deferrable_wh_day=up[0],
+                                         critical_w=demand.critical_w[u_idx], deferrable_wh_day=up[0],
                                          pump_w=up[1], shed_separation_soc=up[2])
             unmet.append((tr["load_w"].sum() - tr["served_w"].sum(), y, tr))
         unmet.sort(key=lambda t: t[0])

@@ -326,3 +326,86 @@ def test_html_report_renders_in_headless_chromium(small_program):
     assert any("State of charge" in a for a in alts)
     assert len(alts) >= 6
     assert "Cautions" in state["sections"]
+
+
+def _price_cells(path):
+    """(sheet, workbook, {row: (kit_id, component_kind, component_id, price cell)}) of the item lines."""
+    from fleet.report.excel import BY_KIT_COLUMNS, BY_KIT_HEADER_ROW
+
+    book = openpyxl.load_workbook(path)
+    ws = book["by_kit"]
+    col = {name: i + 1 for i, name in enumerate(BY_KIT_COLUMNS)}
+    lines = {}
+    for r in range(BY_KIT_HEADER_ROW + 2, ws.max_row + 1):
+        if ws.cell(r, col["line"]).value == "item":
+            lines[r] = (ws.cell(r, col["kit_id"]).value, ws.cell(r, col["component_kind"]).value,
+                        ws.cell(r, col["component_id"]).value, ws.cell(r, col["unit price (USD)"]))
+    return ws, book, lines
+
+
+def test_reprice_with_unchanged_prices_gives_the_same_plan(small_program, tmp_path):
+    out = tmp_path / "same"
+    res = run_fleet("reprice", small_program["out"] / "bill_of_materials.xlsx", "--out", out, "--quiet")
+    assert res.returncode == 0, res.stderr
+    a = json.loads((small_program["out"] / "run.json").read_text())["catalogue"]
+    b = json.loads((out / "run.json").read_text())["catalogue"]
+    for scheme in ("shs", "minigrid"):
+        assert a[scheme]["kit_types"] == b[scheme]["kit_types"]
+        assert a[scheme]["objective_usd"] == pytest.approx(b[scheme]["objective_usd"], rel=1e-9)
+
+
+def test_reprice_round_trip_changes_the_plan_when_prices_change(small_program, tmp_path):
+    book_path = tmp_path / "bill_of_materials.xlsx"
+    run = tmp_path / "run"
+    shutil.copytree(small_program["out"], run)
+    book_path = run / "bill_of_materials.xlsx"
+    ws, book, lines = _price_cells(book_path)
+    before = json.loads((run / "run.json").read_text())["catalogue"]["shs"]["kit_types"]
+    # the batteries of the chosen SHS kits become ten times dearer (a real price shock, accepted on purpose)
+    hit = {cid for kid, kind, cid, _ in lines.values() if kid in before and kind == "battery"}
+    for kid, kind, cid, cell in lines.values():
+        if cid in hit:
+            cell.value = float(cell.value) * 10.0
+    book.save(book_path)
+    out = tmp_path / "repriced"
+    res = run_fleet("reprice", book_path, "--out", out, "--quiet", "--accept-large-changes")
+    assert res.returncode == 0, res.stderr
+    after = json.loads((out / "run.json").read_text())
+    assert after["repriced_from"] == str(run.resolve())
+    changes = pd.read_excel(out / "deployment_summary.xlsx", sheet_name="changes")
+    priced = changes[changes.what == "unit price (USD)"]
+    assert {i.split(":")[0] for i in priced["item"]} == hit
+    assert (priced.after / priced.before).round(9).eq(10.0).all()
+    # the plan moved: other kit types, or the same types given to fewer units
+    shs = changes[changes.what.str.startswith("shs: units given another")]
+    assert after["catalogue"]["shs"]["kit_types"] != before or int(shs.after.iloc[0]) > 0
+    assert after["catalogue"]["shs"]["objective_usd"] > json.loads((run / "run.json").read_text())["catalogue"]["shs"]["objective_usd"]
+    # the new bill of materials carries the new prices
+    _, _, new_lines = _price_cells(out / "bill_of_materials.xlsx")
+    old_price = {cid: float(c.value) / 10.0 for _, _, cid, c in lines.values() if cid in hit}
+    for _, _, cid, c in new_lines.values():
+        if cid in old_price:
+            assert float(c.value) == pytest.approx(10.0 * old_price[cid])
+
+
+def test_reprice_lists_bad_price_cells_by_sheet_and_cell_and_writes_nothing(small_program, tmp_path):
+    run = tmp_path / "run"
+    shutil.copytree(small_program["out"], run)
+    book_path = run / "bill_of_materials.xlsx"
+    ws, book, lines = _price_cells(book_path)
+    rows = sorted(lines)
+    cells = [lines[r][3] for r in rows[:4]]
+    cells[0].value = "1,200"   # text, not a number
+    cells[1].value = -5.0      # negative
+    cells[2].value = None      # missing
+    cells[3].value = float(cells[3].value or 1.0) * 50.0  # an implausible jump
+    book.save(book_path)
+    before = sorted(p.name for p in tmp_path.iterdir())
+    res = run_fleet("reprice", book_path, "--out", tmp_path / "never", "--quiet")
+    assert res.returncode == 2
+    assert "Traceback" not in res.stderr
+    for c in cells:
+        assert f"cell {c.coordinate}" in res.stderr
+        assert f"row {c.row}" in res.stderr
+    assert "sheet by_kit" in res.stderr
+    assert sorted(p.name for p in tmp_path.iterdir()) == before  # no new run folder
