@@ -372,8 +372,9 @@ def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str]
     except BaseException:
         shutil.rmtree(tmp, ignore_errors=True)
         raise
+    from .reprice import STATE_FILE
     return {name: out / name for name in ("bill_of_materials.xlsx", "deployment_summary.xlsx",
-                                          "deployment_summary.html", "sites.gpkg", "run.json")}
+                                          "deployment_summary.html", "sites.gpkg", "run.json", STATE_FILE)}
 
 
 def _json_default(o):

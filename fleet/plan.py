@@ -178,48 +178,66 @@ def _design_quantile(values: np.ndarray, q: float, worse: str = "high") -> np.nd
 
 
 def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """Which (unit, kit[, block count]) options to simulate, and which were screened out and why."""
+    """Which (unit, kit[, block count]) options to simulate, and which were screened out and why.
+
+    Solar home system options: a kit is screened out when the unit's peak exceeds its output
+    rating, its motor start exceeds the inverter's surge rating, or its array cannot yield the
+    demand (less the allowed unmet share) even in the best weather year; it is not offered when its
+    array yields more than ``OVERSIZE_LIMIT`` times the demand in a mean year (the program's
+    smallest kits always are). Minigrid options: each block type at the block counts that cover the
+    peak (and motor start) and ``BLOCK_COUNT_FACTORS`` times the energy need in a mean year.
+    Vectorised over units x kits; options are listed unit by unit, kits in table order.
+    """
     loss = array_losses(cfg)
-    yield_kwh_per_wp = weather.poa_wm2.sum(axis=2).max(axis=1) / 1000.0 / 1000.0 * (1 - loss)  # best year, kWh/Wp
-    mean_yield = weather.poa_wm2.sum(axis=2).mean(axis=1) / 1000.0 / 1000.0 * (1 - loss)
-    target = cfg["program"]["reliability_target"]
-    rows, screened = [], []
-    smallest = kits.groupby("scheme").array_wp.min()
+    annual = weather.poa_wm2.sum(axis=2, dtype=np.float64)
+    yield_best = annual.max(axis=1) / 1e6 * (1 - loss)  # best year, kWh/Wp
+    yield_mean = annual.mean(axis=1) / 1e6 * (1 - loss)
+    s_idx = units.site_index.to_numpy(np.int64)
+    demand_kwh = (design.daily_energy_wh.to_numpy(float) + design.deferrable_wh_day.to_numpy(float)) * 365 / 1000.0
+    peak = design.peak_power_w.to_numpy(float)
+    site_target = sites["reliability_target"].to_numpy(dtype=float)[s_idx]
+    site_target = np.where(np.isfinite(site_target), site_target, cfg["program"]["reliability_target"])
     surge_need = unit_surge_need_w(units, design, sites)  # W a unit's largest motor start asks for
     surge_pass = surge_ok(kits, surge_need)               # (units, kits); DC kits always pass
-    for u_idx, u in enumerate(units.itertuples(index=False)):
-        s_idx = u.site_index
-        demand_kwh = (design.daily_energy_wh.iat[u_idx] + design.deferrable_wh_day.iat[u_idx]) * 365 / 1000.0
-        peak = design.peak_power_w.iat[u_idx]
-        site_target = sites["reliability_target"].iat[s_idx]
-        site_target = target if not np.isfinite(site_target) else float(site_target)
-        for k_idx, k in enumerate(kits.itertuples(index=False)):
-            if k.scheme != u.scheme:
-                continue
-            best_kwh = k.array_wp * yield_kwh_per_wp[s_idx]
-            if u.scheme == "shs":
-                if peak > k.max_load_w:
-                    screened.append((u.unit_id, k.kit_id, 1, f"peak load {peak:.0f} W exceeds the kit's output rating {k.max_load_w:.0f} W"))
-                    continue
-                if not surge_pass[u_idx, k_idx]:
-                    screened.append((u.unit_id, k.kit_id, 1, f"motor starting needs {surge_need[u_idx]:.0f} W, above the inverter's surge rating {k.inverter_surge_w:.0f} W"))
-                    continue
-                if best_kwh * 0.98 < demand_kwh * (1 - site_target):
-                    screened.append((u.unit_id, k.kit_id, 1, f"array yields {best_kwh:.0f} kWh/year in the best year, demand needs {demand_kwh * (1 - site_target):.0f}"))
-                    continue
-                if (k.array_wp * mean_yield[s_idx] > OVERSIZE_LIMIT * demand_kwh
-                        and k.array_wp > 2 * smallest[u.scheme]):
-                    continue  # oversized; not offered (the smallest kits always are)
-                rows.append((u_idx, k_idx, s_idx, 1, site_target))
-            else:
-                n_energy = demand_kwh / max(k.array_wp * mean_yield[s_idx], 1e-9)
-                n_peak = int(np.ceil(peak / k.max_load_w))
-                n_peak = max(n_peak, int(np.ceil(surge_need[u_idx] / k.inverter_surge_w)))  # blocks share a motor start
-                counts = sorted({max(1, n_peak, int(np.ceil(n_energy * f))) for f in BLOCK_COUNT_FACTORS})
-                for n in counts:
-                    rows.append((u_idx, k_idx, s_idx, n, site_target))
-    pairs = pd.DataFrame(rows, columns=["unit_idx", "kit_idx", "site_idx", "blocks", "target"])
-    return pairs, pd.DataFrame(screened, columns=["unit_id", "kit_id", "blocks", "reason"])
+    wp = kits.array_wp.to_numpy(float)
+    max_load = kits.max_load_w.to_numpy(float)
+    k_scheme = kits.scheme.to_numpy()
+    u_scheme = units.scheme.to_numpy()
+    smallest = kits.groupby("scheme").array_wp.min()
+    same = u_scheme[:, None] == k_scheme[None, :]
+    shs = same & (u_scheme == "shs")[:, None]
+    best_kwh = wp[None, :] * yield_best[s_idx][:, None]
+    need_kwh = (demand_kwh * (1 - site_target))[:, None]
+    reason = np.where(peak[:, None] > max_load[None, :], 1,
+                      np.where(~surge_pass, 2, np.where(best_kwh * 0.98 < need_kwh, 3, 0)))
+    oversized = ((wp[None, :] * yield_mean[s_idx][:, None] > OVERSIZE_LIMIT * demand_kwh[:, None])
+                 & (wp > 2 * smallest.reindex(k_scheme).to_numpy(float))[None, :])
+    offered = (shs & (reason == 0) & ~oversized) | (same & ~shs)
+    uu, kk = np.nonzero(offered)
+    blocks = [np.array([1])] * len(uu)
+    for j in np.flatnonzero(u_scheme[uu] != "shs"):
+        u, k = uu[j], kk[j]
+        n_energy = demand_kwh[u] / max(wp[k] * yield_mean[s_idx[u]], 1e-9)
+        n_peak = int(np.ceil(peak[u] / max_load[k]))
+        n_peak = max(n_peak, int(np.ceil(surge_need[u] / kits.inverter_surge_w.iat[k])))  # blocks share a motor start
+        blocks[j] = np.array(sorted({max(1, n_peak, int(np.ceil(n_energy * f))) for f in BLOCK_COUNT_FACTORS}))
+    reps = np.array([len(b) for b in blocks], dtype=np.int64)
+    unit_rep = np.repeat(uu, reps)
+    pairs = pd.DataFrame({"unit_idx": unit_rep, "kit_idx": np.repeat(kk, reps), "site_idx": s_idx[unit_rep],
+                          "blocks": np.concatenate(blocks) if len(blocks) else np.zeros(0, np.int64),
+                          "target": site_target[unit_rep]})
+    su, sk = np.nonzero(shs & (reason > 0))
+    unit_ids, kit_ids = units.unit_id.to_numpy(), kits.kit_id.to_numpy()
+    surge_w = kits.inverter_surge_w.to_numpy(float) if "inverter_surge_w" in kits else np.zeros(len(kits))
+    text = {1: lambda u, k: f"peak load {peak[u]:.0f} W exceeds the kit's output rating {max_load[k]:.0f} W",
+            2: lambda u, k: (f"motor starting needs {surge_need[u]:.0f} W, above the inverter's surge rating "
+                             f"{surge_w[k]:.0f} W"),
+            3: lambda u, k: (f"array yields {best_kwh[u, k]:.0f} kWh/year in the best year, demand needs "
+                             f"{need_kwh[u, 0]:.0f}")}
+    screened = pd.DataFrame({"unit_id": unit_ids[su], "kit_id": kit_ids[sk], "blocks": 1,
+                             "reason": [text[reason[u, k]](u, k) for u, k in zip(su, sk)]},
+                            columns=["unit_id", "kit_id", "blocks", "reason"])
+    return pairs, screened
 
 
 def _ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
@@ -497,6 +515,8 @@ def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = No
                 "scheme": scheme, "design": name, "kit types": ntypes,
                 "units served": int(len(sel)), "units in scheme": len(sch_units),
                 "capex (USD)": float(sel.capex_usd.sum()), "lifecycle cost (USD)": float(sel.cost_usd.sum()),
+                "lifecycle cost with type costs (USD)": float(sel.cost_usd.sum())
+                + ntypes * cfg["catalogue"]["cost_per_kit_type_usd"],
                 "mean unmet energy, design year (%)": float(100 * np.average(sel.unmet_fraction_design, weights=sel["count"])) if len(sel) else np.nan,
                 "units meeting every target": int(np.sum(meets)) if len(sel) else 0,
             })
