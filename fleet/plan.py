@@ -523,6 +523,13 @@ def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = No
     return pd.DataFrame(rows)
 
 
+def _chosen_cost(options: pd.DataFrame, res: CatalogueResult) -> tuple[int, float]:
+    """Units given a kit by a catalogue solution and their lifecycle cost (USD)."""
+    chosen = options.merge(res.assignment[res.assignment != ""].rename("kit_id").reset_index(),
+                           on=["unit_id", "kit_id"])
+    return int(len(chosen)), float(chosen.cost_usd.sum())
+
+
 #: Points of the cost curves every run draws: catalogue sizes, and energy targets (unmet fraction).
 CURVE_KIT_TYPES = tuple(range(1, 9))
 CURVE_TARGETS = (0.01, 0.02, 0.05, 0.10, 0.20)
@@ -549,18 +556,27 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
         scheme_units = units[units.scheme == scheme].unit_id.tolist()
         if not scheme_units:
             continue
-        points = [("kit types", float(k), catalogue_options(ev), int(k)) for k in kit_types]
-        for t in targets:
-            ok = ev.meets_other_targets & ((ev.unmet_fraction_design <= t + 1e-12) if energy_mode else True)
-            points.append(("energy target (unmet fraction)", float(t), catalogue_options(ev.assign(feasible=ok)),
-                           int(c[f"max_kit_types_{scheme}"])))
+        # options are built once per distinct feasibility rule, only for this scheme and with the
+        # columns the solver needs (copies of the whole option table per point grew with the program)
+        mine = ev[ev.scheme == scheme]
+        base = catalogue_options(mine)[["unit_id", "kit_id", "cost_usd"]]
         k_program = int(c[f"max_kit_types_{scheme}"])
+        points = [("kit types", float(k), None, int(k)) for k in kit_types]
+        points += [("energy target (unmet fraction)", float(t), float(t), k_program) for t in targets]
         t_program = cfg["program"]["reliability_target"]
         uniform = bool(np.allclose(ev.target.to_numpy(float), t_program)) if len(ev) else True
-        def solve(o, k):
-            return optimise_catalogue(o[["unit_id", "kit_id", "cost_usd"]], scheme_units, max_types=k,
-                                      cost_per_type_usd=c["cost_per_kit_type_usd"], solver=c["solver"],
-                                      time_limit_s=limit, lp_bound=False)
+
+        def options_at(target):
+            if target is None:
+                return base
+            ok = mine.meets_other_targets & ((mine.unmet_fraction_design <= target + 1e-12) if energy_mode else True)
+            return catalogue_options(mine.assign(feasible=ok))[["unit_id", "kit_id", "cost_usd"]]
+
+        def solve(target, k):
+            o = options_at(target)
+            res = optimise_catalogue(o, scheme_units, max_types=k, cost_per_type_usd=c["cost_per_kit_type_usd"],
+                                     solver=c["solver"], time_limit_s=limit, lp_bound=False)
+            return res, _chosen_cost(o, res)
 
         # the run's own catalogue is a point when the options are the same: always on the kit-type
         # curve, and on the target curve when no site sets its own target; the other points are
@@ -568,26 +584,22 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
         results = {}
         jobs = {}
         with ThreadPoolExecutor(max_workers=2) as pool:
-            for j, (varied, value, opts, k) in enumerate(points):
+            for j, (varied, value, target, k) in enumerate(points):
                 same_options = varied == "kit types" or (abs(value - t_program) < 1e-12 and uniform)
                 if k == k_program and same_options and solved is not None and scheme in solved:
-                    results[j] = solved[scheme]
+                    results[j] = (solved[scheme], _chosen_cost(base, solved[scheme]))
                 else:
-                    jobs[j] = pool.submit(solve, opts[opts.scheme == scheme], k)
+                    jobs[j] = pool.submit(solve, target, k)
             for j, f in jobs.items():
                 results[j] = f.result()
-        for j, (varied, value, opts, k) in enumerate(points):
-            o = opts[opts.scheme == scheme]
-            res = results[j]
-            chosen = o.merge(res.assignment[res.assignment != ""].rename("kit_id").reset_index(),
-                             on=["unit_id", "kit_id"])
+        for j, (varied, value, target, k) in enumerate(points):
+            res, (n_served, cost) = results[j]
             rows.append({
                 "scheme": scheme, "varied": varied, "value": value, "kit types allowed": k,
-                "kit types chosen": len(res.chosen_kits), "units served": int(len(chosen)),
+                "kit types chosen": len(res.chosen_kits), "units served": n_served,
                 "units in scheme": len(scheme_units),
-                "lifecycle cost (USD)": float(chosen.cost_usd.sum()),
-                "lifecycle cost with type costs (USD)": float(chosen.cost_usd.sum()
-                                                              + len(res.chosen_kits) * c["cost_per_kit_type_usd"]),
+                "lifecycle cost (USD)": cost,
+                "lifecycle cost with type costs (USD)": cost + len(res.chosen_kits) * c["cost_per_kit_type_usd"],
                 "solver status": res.status, "gap (%)": 100.0 * res.gap,
             })
     return pd.DataFrame(rows)
