@@ -70,6 +70,16 @@ def _read_inputs(args, problems: list) -> dict:
     return loaded
 
 
+def _check_scheduler(args, problems: list) -> None:
+    """Add a problem for a ``--scheduler`` that is not one (before any long work starts)."""
+    from .errors import InputError
+    from .parallel import parse_scheduler
+    try:
+        parse_scheduler(args.scheduler)
+    except InputError as exc:
+        problems += exc.problems
+
+
 class _Progress:
     """Stage messages and tqdm bars on stderr (silent with --quiet)."""
 
@@ -117,11 +127,7 @@ def cmd_plan(args: argparse.Namespace) -> int:
             loaded["weather_sources"] = {**monthly, **loaded.get("weather_sources", {})}
         except InputError as exc:
             problems += exc.problems
-    from .parallel import parse_scheduler
-    try:
-        parse_scheduler(args.scheduler)
-    except InputError as exc:
-        problems += exc.problems
+    _check_scheduler(args, problems)
     if problems:
         raise InputError(problems)
     progress.stage(f"read {len(loaded['sites'])} sites from {args.sites}")
@@ -329,11 +335,7 @@ def cmd_evaluate(args: argparse.Namespace) -> int:
         elif not csv.parent.is_dir():
             problems.append(Problem(str(csv), None, None, f"folder '{csv.parent}' does not exist"))
     loaded.update(_read_inputs(args, problems))
-    from .parallel import parse_scheduler
-    try:
-        parse_scheduler(args.scheduler)
-    except InputError as exc:
-        problems += exc.problems
+    _check_scheduler(args, problems)
     if problems:
         raise InputError(problems)
     sites, library, cfg = loaded["sites"], loaded["components"], loaded["config"]

@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 
 from .components import ComponentLibrary
+from . import transport
 from .config import ProgramConfig
 from .demand import service_units
 from .dispatch import METRICS
@@ -270,7 +271,7 @@ def evaluate_kit(sites, library: ComponentLibrary, cfg: ProgramConfig, kit_id: s
     with runner(scheduler) as run:
         parts = run.map(evaluate_kit_chunk, chunks, tracker=tracker, desc="site chunks", sites=sites, kit=kit,
                         params=params, tables=tables, cfg=cfg, blocks=blocks, tier_profiles=tier_profiles,
-                        weather_sources=weather_sources, numba_threads=None if run.name == "inprocess" else 1)
+                        weather_sources=weather_sources, numba_threads=run.task_threads)
     problems = [p for part in parts for p in part[2]]
     if problems:
         raise InputError(problems)
@@ -285,7 +286,7 @@ def evaluate_kit_chunk(positions, *, sites, kit, params, tables, cfg: ProgramCon
     """One kit at the service units of its scheme at the sites at ``positions``: (units with their
     design demand, option metrics as :func:`fleet.plan.evaluate` gives them with ``blocks_basis``,
     input problems). Independent of other sites, so chunks may run anywhere (:mod:`fleet.parallel`)."""
-    import numba
+    from .parallel import kernel_threads
 
     pos = np.asarray(list(positions), dtype=np.int64)
     sub = sites.iloc[pos].reset_index(drop=True)
@@ -295,22 +296,25 @@ def evaluate_kit_chunk(positions, *, sites, kit, params, tables, cfg: ProgramCon
     mine = units.index[units.scheme == scheme].to_numpy()
     if len(mine) == 0:
         return units.iloc[0:0], pd.DataFrame(), []
-    sources = {k: v for k, v in (weather_sources or {}).items() if k in set(sub.site_id.astype(str))}
     try:
-        weather = build_weather(sub, cfg, None, sources, positions=pos)
+        weather = build_weather(sub, cfg, None, weather_sources, positions=pos)
     except InputError as exc:
         return units.iloc[0:0], pd.DataFrame(), list(exc.problems)
     site_target = sub["reliability_target"].to_numpy(dtype=float)
     target = np.where(np.isfinite(site_target), site_target, cfg["program"]["reliability_target"])
     unit_params = unit_parameters(units, cfg)
     t_batt = battery_temperature_c(sub, cfg, weather.info)
+    # one delivery cost per site for every round of the block-count search
+    depots = getattr(cfg, "depots", None)
+    delivery = (transport.site_transport(sub, depots, cfg["transport"]).delivery_usd.to_numpy()
+                if depots is not None else np.zeros(len(sub)))
 
     def run(unit_idx: np.ndarray, counts: np.ndarray) -> pd.DataFrame:
         s_idx = units.site_index.to_numpy()[unit_idx]
         pairs = pd.DataFrame({"unit_idx": unit_idx, "kit_idx": 0, "site_idx": s_idx,
                               "blocks": np.asarray(counts, int), "target": target[s_idx]})
         metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, _Quiet(), t_batt)
-        ev = evaluate(pairs, metrics, units, design, kit, cfg, sub, weather.info)
+        ev = evaluate(pairs, metrics, units, design, kit, cfg, sub, weather.info, site_delivery_usd=delivery)
         b = pairs.blocks.to_numpy(float)
         m = {name: metrics[:, :, j].mean(axis=1) for j, name in enumerate(METRICS)}
         ev["pv_available_kwh_year"] = m["pv_bus_wh"] / 1000.0 * b
@@ -321,17 +325,12 @@ def evaluate_kit_chunk(positions, *, sites, kit, params, tables, cfg: ProgramCon
             ev[col] = ev[col] * b
         return ev
 
-    old_threads = numba.get_num_threads()
-    if numba_threads:
-        numba.set_num_threads(min(int(numba_threads), numba.config.NUMBA_NUM_THREADS))
-    try:
+    with kernel_threads(numba_threads):
         if scheme == "shs" or blocks is not None:
             ev = run(mine, np.full(len(mine), 1 if blocks is None else int(blocks)))
             ev["blocks_basis"] = "one kit per member" if scheme == "shs" else "given"
         else:
             ev = _smallest_block_counts(run, mine)
-    finally:
-        numba.set_num_threads(old_threads)
     return units.loc[mine].reset_index(drop=True), ev, []
 
 

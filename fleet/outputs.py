@@ -184,7 +184,8 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         "lowest_tier_reached": "lowest tier reached, design year",
         "households_below_their_tier": "households or units below their tier (count)",
         "ghi_kwh_m2_day": "GHI (kWh/m2/day)", "temp_mean_default_used": "default temperature used"})
-    monthly = [monthly_balance(tr, tr.get("blocks", 1)).reset_index().assign(
+    by_scheme = {scheme: monthly_balance(tr, tr.get("blocks", 1)) for scheme, tr in result.traces.items()}
+    monthly = [by_scheme[scheme].reset_index().assign(
                    scheme=scheme, unit_id=tr["unit_id"], kit_id=tr["kit_id"], weather_year=tr["weather_year"] + 1)
                for scheme, tr in result.traces.items()]
     monthly_table = (pd.concat(monthly, ignore_index=True)[
@@ -202,7 +203,7 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
     return {"program": program, "demand_by_tier": demand_by_tier(result), "by_district": by_district, "by_depot": by_depot, "sites": sites_table,
             "kit_types": kit_types, "comparisons": result.comparisons,
             "cost_curves": result.cost_curves, "monthly_balance": monthly_table, "unserved": unserved_table,
-            "_bom": bom, "_kit_counts": kit_counts, "_kit_specs": specs, "_site_layer": site_layer, "_chosen": c}
+            "_bom": bom, "_kit_counts": kit_counts, "_kit_specs": specs, "_monthly": by_scheme, "_site_layer": site_layer, "_chosen": c}
 
 
 def _clean_zero(value: float, scale: float) -> float:
@@ -273,7 +274,7 @@ def figures(result: PlanResult, tables: dict) -> dict:
     for scheme, tr in result.traces.items():
         what = f"per plant ({tr['blocks']} blocks)" if scheme == "minigrid" else "per kit"
         figs[f"Monthly energy balance at a typical {scheme} unit"] = plots.monthly_energy_balance(
-            monthly_balance(tr, tr.get("blocks", 1)),
+            tables["_monthly"][scheme],
             f"{tr['unit_id']} with {tr['kit_id']}, design weather year, {what}")
     kt = tables["kit_types"]
     per = c.groupby("kit_id")[["capex_usd", "cost_usd"]].sum().reindex(kt.kit_id)

@@ -52,11 +52,29 @@ def parse_scheduler(spec: str | None) -> tuple[str, Any]:
                               "or a dask.distributed scheduler address such as tcp://10.0.0.5:8786")])
 
 
+@contextlib.contextmanager
+def kernel_threads(n: int | None) -> Iterator[None]:
+    """Limit the compiled kernels to ``n`` threads inside the block (None: leave as is); a worker
+    process with one thread per task must not start a thread per core in every task."""
+    if not n:
+        yield
+        return
+    import numba
+
+    old = numba.get_num_threads()
+    numba.set_num_threads(min(int(n), numba.config.NUMBA_NUM_THREADS))
+    try:
+        yield
+    finally:
+        numba.set_num_threads(old)
+
+
 class InProcess:
-    """Runs chunks one after another here."""
+    """Runs chunks one after another here; the kernels use every core."""
 
     name = INPROCESS
     workers = 1
+    task_threads: int | None = None
 
     def map(self, fn: Callable, items: Sequence, *, tracker=None, desc: str = "chunks", **kwargs) -> list:
         it: Iterable = items
@@ -66,7 +84,10 @@ class InProcess:
 
 
 class DaskRunner:
-    """Runs chunks as tasks on a ``dask.distributed`` client; results come back in order."""
+    """Runs chunks as tasks on a ``dask.distributed`` client; results come back in order. Each
+    task runs the kernels on one thread (the workers run tasks side by side)."""
+
+    task_threads: int | None = 1
 
     def __init__(self, client, name: str):
         self.client = client

@@ -675,22 +675,18 @@ def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfi
     options' metrics and costs (:func:`evaluate`). Every result depends only on these sites and
     the program, so chunks can run anywhere and in any order (:mod:`fleet.parallel`). Input
     problems (a site off the resource data) are returned, not raised, so that all are reported."""
-    import numba
+    from .parallel import kernel_threads
 
     pos = np.asarray(list(positions), dtype=np.int64)
     seconds: dict[str, float] = {}
-    old_threads = numba.get_num_threads()
-    if numba_threads:
-        numba.set_num_threads(min(int(numba_threads), numba.config.NUMBA_NUM_THREADS))
-    try:
+    with kernel_threads(numba_threads):
         t = time.perf_counter()
         sub = sites.iloc[pos].reset_index(drop=True)
         units, demand = build_demand(sub, cfg, tier_profiles)
         seconds["demand"] = time.perf_counter() - t
         t = time.perf_counter()
-        sources = {k: v for k, v in (weather_sources or {}).items() if k in set(sub.site_id.astype(str))}
         try:
-            weather = build_weather(sub, cfg, None, sources, positions=pos)
+            weather = build_weather(sub, cfg, None, weather_sources, positions=pos)
         except InputError as exc:
             return SiteChunk(int(pos[0]), units.iloc[0:0], pd.DataFrame(), pd.DataFrame(), pd.DataFrame(),
                              pd.DataFrame(), list(exc.problems), seconds)
@@ -707,8 +703,6 @@ def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfi
                       site_delivery_usd=np.asarray(delivery_usd, float)[pos])
         info = weather.info.assign(design_month_sun_hours=rule_of_thumb.design_month_sun_hours(weather.poa_wm2))
         seconds["metrics"] = time.perf_counter() - t
-    finally:
-        numba.set_num_threads(old_threads)
     units = units.assign(site_index=pos[units.site_index.to_numpy()])
     pairs = pairs.assign(site_idx=pos[pairs.site_idx.to_numpy()])
     return SiteChunk(int(pos[0]), units, info, pairs, screened, ev, [], seconds)
@@ -799,7 +793,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
         parts = run.map(plan_site_chunk, chunks, tracker=tracker, desc="site chunks",
                         sites=sites, kits=kits, params=params, tables=tables, cfg=cfg,
                         delivery_usd=delivery.delivery_usd.to_numpy(), tier_profiles=tier_profiles,
-                        weather_sources=weather_sources, numba_threads=None if run.name == "inprocess" else 1)
+                        weather_sources=weather_sources, numba_threads=run.task_threads)
         scheduler_name = run.name
     problems = [p for part in parts for p in part.problems]
     if problems:
@@ -900,8 +894,7 @@ def site_hourly_inputs(result: PlanResult, site_pos: int):
     """Weather years and the service units' hourly demand of one site of a plan, built again
     (both are seeded per site, so they are the ones the plan simulated): (Weather, units, UnitDemand)."""
     sub = result.sites.iloc[[int(site_pos)]].reset_index(drop=True)
-    sources = {k: v for k, v in (result.weather_sources or {}).items() if k == str(sub.site_id.iat[0])}
-    weather = build_weather(sub, result.config, None, sources, positions=[int(site_pos)])
+    weather = build_weather(sub, result.config, None, result.weather_sources, positions=[int(site_pos)])
     units, demand = build_demand(sub, result.config, result.tier_profiles)
     return weather, units, demand
 
