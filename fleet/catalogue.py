@@ -40,6 +40,13 @@ with distinct cases, not sites, in three exact steps:
 A greedy-and-interchange heuristic [4]_ gives the solver a starting plan, so a
 time limit always returns a plan: the solver's best, or the heuristic's.
 
+Modular plants (:func:`optimise_block_catalogue`) are built from standard
+blocks of several kinds (PV blocks, battery blocks, inverters); there the
+catalogue standardises the block types of each kind, at most K per kind, and a
+plant design is usable only when every block type it uses is chosen: facility
+location with one family of facilities per kind, where a customer needs one
+open facility of every family at once, in a combination priced as a whole.
+
 References
 ----------
 .. [1] Wolsey, L. A. (1998). Integer Programming. Wiley (strong formulation of
@@ -57,6 +64,7 @@ References
 from __future__ import annotations
 
 import time
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -88,6 +96,8 @@ class CatalogueResult:
     #: size and timing of the program solved: cases, prefix_sets, kits, dominated_kits,
     #: variables, constraints, nonzeros, build_s, lp_s, solve_s, heuristic_objective_usd
     model_stats: dict = field(default_factory=dict)
+    #: kind -> sorted chosen block type ids (:func:`optimise_block_catalogue`; empty otherwise)
+    chosen_blocks: dict = field(default_factory=dict)
 
 
 if pulp.HiGHS().available():
@@ -557,3 +567,368 @@ def _priced(matrix: np.ndarray, chosen: list[int], per_type: float, big_m: float
 def custom_best(options: pd.DataFrame) -> pd.DataFrame:
     """The cheapest feasible kit per unit with no limit on kit types (the price of standardising)."""
     return options.loc[options.groupby("unit_id").cost_usd.idxmin()].reset_index(drop=True)
+
+
+# --------------------------------------------------------------------------- block catalogue (modular plants)
+
+@dataclass
+class _Combinations:
+    """Options reduced to the cheapest per unit and combination of block types."""
+
+    matrix: np.ndarray  # units x combinations, USD (inf: no option of the unit uses that combination)
+    row: np.ndarray  # units x combinations, position in the options table of that cheapest option (-1: none)
+    units: pd.Index  # unit ids (sorted)
+    combo_types: np.ndarray  # combinations x kinds: block type (global index) of each kind
+    type_kind: np.ndarray  # per block type (global index): position of its kind in ``kinds``
+    type_names: np.ndarray  # per block type (global index): its id
+
+
+def _block_combinations(options: pd.DataFrame, kinds: Sequence[str]) -> _Combinations:
+    """The unit x combination cost table: a combination is one block type per kind, and only
+    each unit's cheapest option per combination matters (any other costs more under every
+    catalogue that allows it). Ties keep the option listed first."""
+    cost = options["cost_usd"].to_numpy(dtype=float)
+    u, units = pd.factorize(options["unit_id"], sort=True)
+    codes, names, kind_of = [], [], []
+    for i, kind in enumerate(kinds):
+        code, types = pd.factorize(options[kind], sort=True)
+        codes.append(code + sum(len(n) for n in names))
+        names.append(np.asarray(types, dtype=object))
+        kind_of.append(np.full(len(types), i))
+    per_row = np.column_stack(codes)
+    combo_types, j = np.unique(per_row, axis=0, return_inverse=True)
+    j = j.reshape(-1)
+    matrix = np.full((len(units), len(combo_types)), np.inf)
+    row = np.full(matrix.shape, -1, dtype=np.int64)
+    position = np.arange(len(cost))
+    order = np.lexsort((-position, -cost))  # dearest first; among equal costs the first listed is written last
+    matrix[u[order], j[order]] = cost[order]
+    row[u[order], j[order]] = position[order]
+    return _Combinations(matrix, row, pd.Index(units, name="unit_id"), combo_types,
+                         np.concatenate(kind_of), np.concatenate(names))
+
+
+def _usable(combo_types: np.ndarray, chosen: np.ndarray) -> np.ndarray:
+    """Combinations whose block types are all chosen (``chosen``: bool per block type)."""
+    return chosen[combo_types].all(axis=1)
+
+
+def _block_plan_cost(case_cost: np.ndarray, penalty: np.ndarray, combo_types: np.ndarray,
+                     chosen: np.ndarray, per_type: float) -> float:
+    """Total (USD) of a choice of block types: each case on its cheapest usable combination
+    (or its penalty), plus F per chosen type."""
+    usable = _usable(combo_types, chosen)
+    best = case_cost[:, usable].min(axis=1) if usable.any() else np.full(len(penalty), np.inf)
+    return float(np.minimum(best, penalty).sum() + per_type * chosen.sum())
+
+
+def greedy_interchange_blocks(case_cost: np.ndarray, penalty: np.ndarray, combo_types: np.ndarray,
+                              type_kind: np.ndarray, max_types: int, per_type: float,
+                              max_passes: int = 100) -> tuple[np.ndarray, float]:
+    """A good choice of block types fast (greedy, then vertex substitution, Teitz & Bart 1968).
+
+    A plant needs one chosen type of every kind, so adding a single type to an
+    empty catalogue serves no one; the start is therefore the best single
+    combination (one type per kind). Then the type, of any kind, that lowers the
+    total most is added while one does and its kind holds fewer than
+    ``max_types``; then the best swap of a type for another of the same kind, drop
+    or add is made until none lowers the total.
+
+    ``case_cost`` cases x combinations (USD, ``inf`` infeasible); ``penalty`` per
+    case (USD); ``combo_types`` combinations x kinds (block type indices);
+    ``type_kind`` the kind of every block type. Returns the chosen mask (bool per
+    block type) and the plan's total (USD).
+    """
+    n_types = len(type_kind)
+    n_kinds = combo_types.shape[1]
+    chosen = np.zeros(n_types, dtype=bool)
+    cost = float(penalty.sum())
+    if max_types < 1 or case_cost.shape[1] == 0:
+        return chosen, cost
+    single = np.minimum(case_cost, penalty[:, None]).sum(axis=0) + per_type * n_kinds
+    j = int(np.argmin(single))
+    if single[j] < cost:
+        chosen[combo_types[j]] = True
+        cost = _block_plan_cost(case_cost, penalty, combo_types, chosen, per_type)
+
+    def count(mask: np.ndarray) -> np.ndarray:
+        return np.bincount(type_kind[mask], minlength=n_kinds)
+
+    def trial(mask: np.ndarray) -> float:
+        return _block_plan_cost(case_cost, penalty, combo_types, mask, per_type)
+
+    def with_flips(*flip: int) -> np.ndarray:
+        mask = chosen.copy()
+        mask[list(flip)] = ~mask[list(flip)]
+        return mask
+
+    tol = lambda c: 1e-9 * max(abs(c), 1.0)  # noqa: E731
+    while True:  # greedy additions
+        room = count(chosen) < max_types
+        trials = [(trial(with_flips(t)), t) for t in np.nonzero(~chosen & room[type_kind])[0].tolist()]
+        if not trials:
+            break
+        best_cost, t = min(trials)
+        if best_cost >= cost - tol(cost):
+            break
+        cost, chosen = best_cost, with_flips(t)
+    for _ in range(max_passes):  # interchange: swap within a kind, drop, add
+        room = count(chosen) < max_types
+        inside, outside = np.nonzero(chosen)[0].tolist(), np.nonzero(~chosen)[0].tolist()
+        moves = [(trial(with_flips(i)), (i,)) for i in inside]
+        moves += [(trial(with_flips(i, t)), (i, t)) for i in inside for t in outside if type_kind[t] == type_kind[i]]
+        moves += [(trial(with_flips(t)), (t,)) for t in outside if room[type_kind[t]]]
+        if not moves:
+            break
+        best_cost, flip = min(moves, key=lambda m: m[0])
+        if best_cost >= cost - tol(cost):
+            break
+        cost, chosen = best_cost, with_flips(*flip)
+    return chosen, cost
+
+
+def _build_blocks(case_cost: np.ndarray, penalty: np.ndarray, combo_types: np.ndarray, type_kind: np.ndarray,
+                  max_types: int, per_type: float):
+    """The block program: binary y per block type, continuous x per (case, feasible combination)
+    and z per case, with the aggregated links sum_{j uses t} x_cj <= y_t per case, kind and type."""
+    n = case_cost.shape[0]
+    n_types, n_kinds = len(type_kind), combo_types.shape[1]
+    prob = pulp.LpProblem("block_catalogue", pulp.LpMinimize)
+    y = [prob.add_variable(f"y_{t}", 0, 1, cat=pulp.LpBinary) for t in range(n_types)]
+    z = [prob.add_variable(f"z_{c}", 0, 1) for c in range(n)]
+    cc, jj = np.nonzero(np.isfinite(case_cost))  # row-major: grouped by case
+    x = [prob.add_variable(f"x_{i}", 0, 1) for i in range(len(cc))]
+    prob.setObjective(pulp.LpAffineExpression(
+        [(xi, float(c)) for xi, c in zip(x, case_cost[cc, jj])] + [(yt, per_type) for yt in y]
+        + [(zc, float(p)) for zc, p in zip(z, penalty)]))
+    le, eq = pulp.LpConstraintLE, pulp.LpConstraintEQ
+    starts = np.searchsorted(cc, np.arange(n + 1))
+    for c in range(n):
+        terms = [(x[i], 1.0) for i in range(starts[c], starts[c + 1])] + [(z[c], 1.0)]
+        prob.addConstraint(pulp.LpConstraint(pulp.LpAffineExpression(terms), eq, rhs=1.0), f"a{c}")
+    links = 0
+    for k in range(n_kinds):
+        key = cc.astype(np.int64) * n_types + combo_types[jj, k]
+        order = np.argsort(key, kind="stable")
+        cuts = np.nonzero(np.diff(key[order]))[0] + 1
+        for group in np.split(order, cuts):
+            if not len(group):
+                continue
+            t = int(combo_types[jj[group[0]], k])
+            terms = [(x[i], 1.0) for i in group.tolist()] + [(y[t], -1.0)]
+            prob.addConstraint(pulp.LpConstraint(pulp.LpAffineExpression(terms), le, rhs=0.0), f"l{links}")
+            links += 1
+    for k in range(n_kinds):
+        prob.addConstraint(pulp.LpConstraint(pulp.LpAffineExpression(
+            [(y[t], 1.0) for t in np.nonzero(type_kind == k)[0].tolist()]), le, rhs=float(max_types)), f"types{k}")
+    nonzeros = int(2 * len(x) + n + n_kinds * len(x) + links + n_types)
+    return prob, y, x, z, (cc, jj), links + n + n_kinds, nonzeros
+
+
+def _set_block_start(y, x, z, pairs, case_cost: np.ndarray, penalty: np.ndarray, combo_types: np.ndarray,
+                     chosen: np.ndarray) -> None:
+    """Starting values: the chosen types, each case on its cheapest usable combination (or unserved)."""
+    cc, jj = pairs
+    usable = _usable(combo_types, chosen)
+    masked = np.where(usable[None, :], case_cost, np.inf)
+    pick = np.argmin(masked, axis=1)
+    best = masked[np.arange(len(masked)), pick]
+    served = best < penalty
+    for yt, on in zip(y, chosen.tolist()):
+        yt.setInitialValue(1.0 if on else 0.0)
+    for zc, s in zip(z, served.tolist()):
+        zc.setInitialValue(0.0 if s else 1.0)
+    on = served[cc] & (jj == pick[cc])
+    for xi, o in zip(x, on.tolist()):
+        xi.setInitialValue(1.0 if o else 0.0)
+
+
+def _priced_blocks(comb: _Combinations, chosen: np.ndarray, per_type: float, big_m: float
+                   ) -> tuple[float, np.ndarray, np.ndarray]:
+    """A choice of block types' plan and true total (USD): each unit on its cheapest usable
+    combination, assigned costs + F per chosen type + M per unit left unserved."""
+    col, cost = _best_assignment(comb.matrix, np.nonzero(_usable(comb.combo_types, chosen))[0].tolist())
+    return float(cost.sum() + per_type * chosen.sum() + big_m * np.sum(col < 0)), chosen, col
+
+
+def _check_block_options(options: pd.DataFrame, kinds: Sequence[str],
+                         allowed_types: dict[str, list[str]] | None) -> None:
+    if not len(kinds):
+        raise ValueError("block catalogue: kinds must name at least one block column")
+    if len(set(kinds)) != len(kinds):
+        raise ValueError(f"block catalogue: kinds {list(kinds)} name a column twice")
+    missing = [c for c in ["unit_id", "kit_id", "cost_usd", *kinds] if c not in options.columns]
+    if missing:
+        raise ValueError(f"block catalogue options: missing column(s) {missing}")
+    blank = options[list(kinds)].isna()
+    if blank.any(axis=None):
+        r = int(np.nonzero(blank.any(axis=1).to_numpy())[0][0])
+        col = blank.columns[blank.iloc[r].to_numpy()][0]
+        raise ValueError(f"block catalogue options: row {r} (unit {options.unit_id.iloc[r]!r}, "
+                         f"kit {options.kit_id.iloc[r]!r}) has no {col}")
+    cost = options["cost_usd"].to_numpy(dtype=float)
+    if not np.all(np.isfinite(cost)):
+        bad = options.loc[~np.isfinite(cost), ["unit_id", "kit_id"]].head(3).to_dict("records")
+        raise ValueError(f"block catalogue options: cost_usd must be a finite number of USD (e.g. {bad})")
+    twice = options.duplicated(["unit_id", "kit_id"], keep=False)
+    if twice.any():
+        bad = options.loc[twice, ["unit_id", "kit_id"]].head(3).to_dict("records")
+        raise ValueError(f"block catalogue options: kit_id must be unique within a unit (e.g. {bad})")
+    unknown = sorted(set(allowed_types or {}) - set(kinds))
+    if unknown:
+        raise ValueError(f"block catalogue: allowed_types names {unknown}, which are not among kinds {list(kinds)}")
+
+
+def optimise_block_catalogue(options: pd.DataFrame, all_units: list[str], *, kinds: Sequence[str],
+                             max_types: int, cost_per_type_usd: float, solver: str = "cbc",
+                             time_limit_s: float = 120.0, allowed_types: dict[str, list[str]] | None = None,
+                             lp_bound: bool = True) -> CatalogueResult:
+    """Choose at most ``max_types`` block types of each kind for modular plants and give
+    every unit one plant design built only from chosen types, at least cost.
+
+    A design (an option) uses one block type of every kind (e.g. a PV block, a
+    battery block and an inverter type). Facility location with one family of
+    facilities per kind: a unit is served by a design only when all of the
+    design's types are open, at most K types are open in each family, and each
+    open type costs F (Wolsey 1998; Cornuejols, Nemhauser & Wolsey 1980). Variables: ``y_t`` (block type t is in the
+    catalogue, binary), ``x_cj`` (case c is built as combination j, one block
+    type per kind), ``z_c`` (case c is left unserved):
+
+        minimise   sum_cj C_cj x_cj + F sum_t y_t + M sum_c w_c z_c
+        subject to sum_j x_cj + z_c = 1                      every case c
+                   sum_{j of c using t} x_cj <= y_t          every case c, kind, type t of that kind
+                   sum_{t of kind} y_t <= K                  every kind
+
+    Exact reductions, so the program grows with distinct cases, not units:
+    only each unit's cheapest option per combination of block types matters
+    (any other costs more under every catalogue that allows it); units whose
+    cost rows over combinations agree up to an offset and a positive scale
+    choose alike under any catalogue and merge into one case of ``w_c`` units,
+    ``C_cj`` the sum of their costs (see :func:`merge_identical_units`). The
+    linking rows are the aggregated form of ``x_cj <= y_t`` over a case's
+    combinations that share type t; since a case takes at most one combination
+    they are valid, and they are tighter in the LP relaxation (Wolsey 1998). With y
+    binary, each case's best x is a vertex of its simplex of usable
+    combinations, so x and z are continuous.
+
+    A greedy-and-interchange plan over block types (Teitz & Bart 1968; start with the best
+    single combination, add the type that lowers the total most, then swap types
+    within a kind while that lowers it, see :func:`greedy_interchange_blocks`)
+    is the solver's starting solution and the fallback at a time limit.
+
+    Parameters
+    ----------
+    options : DataFrame
+        Feasible plant options only: ``unit_id``, ``kit_id`` (the plant design;
+        unique within a unit), ``cost_usd`` (lifecycle cost of serving the whole
+        unit with that plant, USD) and one column per name in ``kinds`` holding
+        the block type of that kind the design uses.
+    all_units : list of str
+        Every unit of the scheme, including those with no feasible option.
+    kinds : sequence of str
+        The block kind columns, e.g. ``("pv_block_id", "battery_block_id", "inverter_id")``.
+    max_types : int
+        Most block types of each kind the catalogue may hold (K).
+    cost_per_type_usd : float
+        Fixed cost of carrying one block type, of any kind (F, USD).
+    solver : {'cbc', 'highs'}
+        CBC (``cbcbox``) or HiGHS (``highspy``).
+    time_limit_s : float
+        Wall-clock limit of each solver call (s); as in :func:`optimise_catalogue`,
+        when it is reached the best plan found (the solver's, or the heuristic's)
+        is returned with status ``'time limit reached, best plan found'``.
+    allowed_types : dict of kind -> list of str, optional
+        Restrict the choice of each named kind to these types (e.g. one type of
+        each kind for every unit, for comparisons).
+    lp_bound : bool
+        Also solve the LP relaxation for a lower bound and the gap (default); without
+        it the gap is 0 when the solver proves optimality and NaN otherwise.
+
+    Returns
+    -------
+    CatalogueResult
+        ``chosen_kits``: every chosen block type id (all kinds, sorted);
+        ``chosen_blocks``: kind -> sorted chosen type ids; ``assignment``: unit_id ->
+        the option's ``kit_id`` ('' when unserved). ``objective_usd`` is the plan's
+        true total: lifecycle costs of the assigned options, plus F per chosen type,
+        plus M per unit that has options but none built from chosen types
+        (M = 10 x the dearest option kept by the reduction + 10 F + 1 USD, the rule of
+        :func:`optimise_catalogue`). ``gap`` = (total - bound) / total.
+        ``model_stats`` gives sizes and timings.
+
+    References
+    ----------
+    See the module notes: Wolsey (1998) for the strong linking constraints,
+    Cornuejols, Nemhauser & Wolsey (1980) for the facility-location form, Teitz &
+    Bart (1968) for the interchange heuristic.
+    """
+    t0 = time.perf_counter()
+    kinds = list(kinds)
+    _check_block_options(options, kinds, allowed_types)
+    opts = options.reset_index(drop=True)
+    opts = opts.assign(**{k: opts[k].astype(str) for k in kinds})
+    for kind, types in (allowed_types or {}).items():
+        opts = opts[opts[kind].isin([str(t) for t in types])]
+    opts = opts.reset_index(drop=True)
+    listed = pd.Index(all_units, name="unit_id")
+    if opts.empty:
+        return CatalogueResult([], pd.Series("", index=listed, dtype=object),
+                               "no feasible option" if all_units else "no units", 0.0, 0.0, 0.0,
+                               0, len(all_units), 0.0, solver, list(all_units), {}, {k: [] for k in kinds})
+    comb = _block_combinations(opts, kinds)
+    per_type = float(cost_per_type_usd)
+    big_m = 10.0 * float(comb.matrix[np.isfinite(comb.matrix)].max()) + 10.0 * per_type + 1.0
+    case_of, case_cost, members = _merge_matrix(comb.matrix)
+    penalty = members * big_m
+    heuristic, heur_cost = greedy_interchange_blocks(case_cost, penalty, comb.combo_types, comb.type_kind,
+                                                     max_types, per_type)
+    prob, y, x, z, pairs, n_constraints, nonzeros = _build_blocks(case_cost, penalty, comb.combo_types,
+                                                                  comb.type_kind, max_types, per_type)
+    stats: dict = {"units_in_program": len(comb.units), "options": len(opts),
+                   "pairs": int(np.isfinite(comb.matrix).sum()), "combinations": len(comb.combo_types),
+                   "cases": len(members), "kinds": len(kinds), "block_types": len(comb.type_kind),
+                   "variables": len(y) + len(x) + len(z), "constraints": n_constraints, "nonzeros": nonzeros,
+                   "heuristic_objective_usd": heur_cost, "build_s": time.perf_counter() - t0}
+
+    bound = float("nan")
+    if lp_bound:
+        t = time.perf_counter()
+        prob.solve(_solver(solver, time_limit_s, mip=False))
+        if prob.sol_status == pulp.LpSolutionOptimal:  # a relaxation stopped early bounds nothing
+            bound = float(pulp.value(prob.objective) or 0.0)
+        stats["lp_s"] = time.perf_counter() - t
+    _set_block_start(y, x, z, pairs, case_cost, penalty, comb.combo_types, heuristic)
+    t = time.perf_counter()
+    prob.solve(_solver(solver, time_limit_s, start=True))
+    stats["solve_s"] = time.perf_counter() - t
+    found = prob.sol_status in (pulp.LpSolutionOptimal, pulp.LpSolutionIntegerFeasible)
+    status = pulp.LpStatus[prob.status]
+    if prob.sol_status == pulp.LpSolutionIntegerFeasible or (not found and heuristic.any()):
+        status = TIME_LIMIT_STATUS
+
+    # the plan: the solver's block types (or the heuristic's, if better or the solver found none),
+    # each unit on its cheapest usable combination; the objective is recomputed from the plan's own costs
+    plans = []
+    if found:
+        picked = np.array([(yt.value() or 0) > 0.5 for yt in y], dtype=bool)
+        plans.append(_priced_blocks(comb, picked, per_type, big_m))
+    if not found or status != "Optimal":
+        plans.append(_priced_blocks(comb, heuristic, per_type, big_m))
+    total, chosen, col = min(plans, key=lambda p: p[0])
+
+    units = comb.units
+    index = listed.append(units[~units.isin(listed)]) if not units.isin(listed).all() else listed
+    served = col >= 0
+    rows = comb.row[np.arange(len(units)), np.maximum(col, 0)]
+    kit = opts["kit_id"].to_numpy(dtype=object)[np.maximum(rows, 0)]
+    assignment = pd.Series(np.where(served, kit, ""), index=units, dtype=object)
+    assignment = assignment.reindex(index, fill_value="").rename_axis("unit_id")
+    if not lp_bound:
+        bound = total if status == "Optimal" else float("nan")
+    gap = (total - bound) / total if total > 0 else 0.0
+    unserved = listed[(assignment.reindex(listed) == "").to_numpy()].tolist()
+    names = comb.type_names
+    blocks = {kind: sorted(names[chosen & (comb.type_kind == i)].tolist()) for i, kind in enumerate(kinds)}
+    return CatalogueResult(sorted(names[chosen].tolist()), assignment, status, total, bound,
+                           gap if np.isnan(gap) else max(gap, 0.0), len(members), len(all_units),
+                           time.perf_counter() - t0, solver, unserved, stats, blocks)

@@ -102,9 +102,10 @@ _CHOICES = {
     ("charge_controllers", "kind"): ("pwm", "series", "shunt", "mppt"),
     ("charge_controllers", "blocks_reverse_current"): ("yes", "no"),
     ("balance_of_system", "scheme"): ("shs", "minigrid", "all"),
-    ("balance_of_system", "basis"): ("per_kit", "per_module", "per_block", "per_battery"),
+    ("balance_of_system", "basis"): ("per_kit", "per_module", "per_block", "per_battery", "per_battery_block",
+                                     "per_inverter", "per_plant"),
     ("installation", "scheme"): ("shs", "minigrid"),
-    ("installation", "basis"): ("per_kit", "per_block"),
+    ("installation", "basis"): ("per_kit", "per_block", "per_battery_block", "per_inverter", "per_plant"),
     ("fuses", "application"): ("pv_string", "battery"),
 }
 

@@ -45,6 +45,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("system", "voltages_v"): (list, None, None, "V"),
     ("system", "reconnect_hysteresis_soc"): (float, 0.0, 0.5, "state of charge"),
     ("system", "max_parallel_battery_strings"): (int, 1, 10, "strings"),
+    ("system", "max_plant_lifepo4_blocks"): (int, 1, 64, "battery blocks"),
     ("system", "critical_shed_separation_soc"): (float, 0.0, 0.5, "state of charge"),
     ("system", "battery_temp_offset_k"): (float, -10.0, 30.0, "K"),
     ("system", "design_cell_temp_hot_c"): (float, 30.0, 100.0, "degC"),
@@ -81,7 +82,8 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
 
 ALLOWED_VOLTAGES_V = (12, 24, 48)
 #: keys that may be absent (absent tilt/azimuth: tilt = |latitude|, at least 10 deg, facing the equator)
-OPTIONAL_KEYS = {("pv", "tilt_deg"), ("pv", "azimuth_deg"), ("transport", "depots_file")}
+OPTIONAL_KEYS = {("pv", "tilt_deg"), ("pv", "azimuth_deg"), ("transport", "depots_file"),
+                 ("system", "max_plant_lifepo4_blocks")}
 #: keys a program file does not inherit from the bundled demo program (they name demo files)
 NOT_INHERITED = {("transport", "depots_file")}
 NO_DEPOTS_NOTE = "no depots file (program [transport] depots_file): transport cost is zero."

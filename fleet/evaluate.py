@@ -115,8 +115,6 @@ FROM_PLAN = {
     "lifecycle_cost_usd": "lifecycle_cost_usd",
     "meets_target": "feasible",
 }
-#: Of those, the plan's per-block figures that this table gives per plant (x blocks).
-PER_BLOCK_IN_PLAN = ("controller_loss_kwh_year", "inverter_loss_kwh_year")
 
 
 class KitChoiceError(ValueError):
@@ -170,10 +168,12 @@ def candidate_kit_table(sites, library: ComponentLibrary, cfg: ProgramConfig, *,
         weather_info = build_weather(sites, cfg, weather_sources=weather_sources).info
     s = cfg["system"]
     cond = design_conditions(sites, cfg, weather_info)
-    key = (_library_key(library), cond, tuple(s["voltages_v"]), int(s["max_parallel_battery_strings"]))
+    key = (_library_key(library), cond, tuple(s["voltages_v"]), int(s["max_parallel_battery_strings"]),
+           s.get("max_plant_lifepo4_blocks"))
     if key not in _CANDIDATES:
         kits, _, _ = candidate_kits(library, voltages_v=s["voltages_v"],
-                                    max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
+                                    max_parallel_strings=s["max_parallel_battery_strings"], cond=cond,
+                                    max_plant_lifepo4_blocks=s.get("max_plant_lifepo4_blocks"))
         while len(_CANDIDATES) >= _CANDIDATES_KEPT:
             _CANDIDATES.pop(next(iter(_CANDIDATES)))
         _CANDIDATES[key] = kits
@@ -315,14 +315,12 @@ def evaluate_kit_chunk(positions, *, sites, kit, params, tables, cfg: ProgramCon
                               "blocks": np.asarray(counts, int), "target": target[s_idx]})
         metrics = simulate_chunked(weather, demand, unit_params, params, tables, pairs, _Quiet(), t_batt)
         ev = evaluate(pairs, metrics, units, design, kit, cfg, sub, weather.info, site_delivery_usd=delivery)
-        b = pairs.blocks.to_numpy(float)
+        # the kernel ran whole plants (n of each block), so every figure is per kit or per plant
         m = {name: metrics[:, :, j].mean(axis=1) for j, name in enumerate(METRICS)}
-        ev["pv_available_kwh_year"] = m["pv_bus_wh"] / 1000.0 * b
-        ev["pv_used_kwh_year"] = m["pv_used_wh"] / 1000.0 * b
-        ev["pv_spilled_kwh_year"] = m["pv_spilled_wh"] / 1000.0 * b
-        ev["battery_throughput_kwh_year"] = m["battery_discharge_wh"] / 1000.0 * b
-        for col in PER_BLOCK_IN_PLAN:
-            ev[col] = ev[col] * b
+        ev["pv_available_kwh_year"] = m["pv_bus_wh"] / 1000.0
+        ev["pv_used_kwh_year"] = m["pv_used_wh"] / 1000.0
+        ev["pv_spilled_kwh_year"] = m["pv_spilled_wh"] / 1000.0
+        ev["battery_throughput_kwh_year"] = m["battery_discharge_wh"] / 1000.0
         return ev
 
     with kernel_threads(numba_threads):

@@ -2,8 +2,14 @@
 each electrically checked, with its bill-of-materials lines.
 
 A kit (solar home system) serves one household or facility. A minigrid plant
-is a whole number of identical *blocks* (PV array on its MPPT controller,
-battery bank, inverter) in parallel on a common AC bus.
+is modular: a count of standard *PV blocks* (a PV array on its MPPT charge
+controller), a count of *battery blocks* (one battery string at the plant's
+bus voltage, with its own fuse) and a count of *inverters*, all on the plant's
+48 V DC bus. Each electrically compatible (PV block, battery block, inverter)
+triple is a row of the kit table (a plant *template*, ``scheme='minigrid'``,
+one block of each kind); a plant design is a template with its three counts
+(:func:`plant_quantities`, :func:`plant_parameters`), chosen per village by
+the planner, and the catalogue standardises the block types of each kind.
 
 Electrical rules (each a function or constant below, cited). A combination that
 breaks one lands in the ``rejected`` table of :func:`candidate_kits` with the
@@ -23,7 +29,12 @@ rule's key (:data:`REJECTION_RULES`) and a readable reason:
   voltage, with at most 20 % array oversizing (common practice);
 * battery strings in parallel limited (config; common practice for lead-acid);
 * an AC kit's inverter rated for the kit's design output (1.5 W per Wp for
-  household kits, 0.6-1.7 W per Wp for plant blocks; assumptions of ours);
+  household kits; an assumption of ours); a plant's inverters are counted for
+  its peak and motor starts by the planner;
+* a plant's battery block is one string of at least
+  :data:`PLANT_MIN_BATTERY_BLOCK_WH` (smaller strings would need many in
+  parallel), and a plant parallels at most the configured number of lead-acid
+  strings or :data:`PLANT_LFP_MAX_PARALLEL` LiFePO4 modules (common practice);
 * every cable and fuse the kit needs exists in the library (:func:`wiring`).
 
 A unit's motor loads need starting (surge) power above their running power
@@ -61,11 +72,17 @@ SHS_MAX_ARRAY_W = 2000.0
 # A household's appliances peak well above its array power: the inverter of an
 # AC kit is the smallest rated at >= 1.5 W per Wp (an assumption of ours).
 SHS_INVERTER_PER_WP = 1.5
-#: A plant block's inverter is rated between these multiples of its array power (W per Wp; an
-#: assumption of ours, the thinning keeps the one nearest 1).
-BLOCK_INVERTER_PER_WP = (0.6, 1.7)
 SHS_USABLE_WH_PER_WP = (1.2, 6.0)
-BLOCK_USABLE_WH_PER_WP = (1.5, 6.0)
+#: Smallest nominal energy of a plant's battery block (one string), Wh: smaller strings would need
+#: many in parallel on the plant's bus (an assumption of ours).
+PLANT_MIN_BATTERY_BLOCK_WH = 5000.0
+#: LiFePO4 battery blocks (each with its own battery management system and fuse or breaker)
+#: paralleled on one plant bus when the program does not say (``system.max_plant_lifepo4_blocks``;
+#: an assumption of ours: makers state their own limits). Lead-acid plants parallel at most
+#: ``system.max_parallel_battery_strings`` strings (common practice for lead-acid).
+PLANT_LFP_MAX_PARALLEL = 24
+#: Modules of plant PV blocks are at least this large (common practice).
+PLANT_MIN_MODULE_W = 250.0
 
 #: Array power (Wp, both ends included) each system voltage is used for. Higher power at a
 #: low voltage means battery-side currents past about 40 A at 12 V and 80 A at 24 V, with
@@ -90,6 +107,7 @@ REJECTION_RULES = {
     "hot_vmp": "hot string Vmp too low to finish charging the battery",
     "controller_current": "controller current rating (NEC 690.8(A) for PWM; MPPT output current)",
     "battery_parallel": "too many battery strings in parallel",
+    "battery_block_size": "battery string too small for a plant's battery block",
     "inverter_rating": "no inverter rated for the kit's design output",
     "cable_section": "cable section beyond the largest available",
     "fuse_rating": "no fuse or breaker of the rating and voltage needed",
@@ -461,7 +479,7 @@ def _kit_row(scheme, system_v, module, n_series, n_parallel, battery, b_series, 
     else:
         max_load_w = float(controller.load_output_a) * system_v * n_controllers
     short = {"lead_acid": "LA", "lifepo4": "LF"}[chem]
-    prefix = "S" if scheme == "shs" else "B"
+    prefix = "S" if scheme == "shs" else "P"
     kit_id = (f"{prefix}{system_v}-{n_mod}x{int(module.power_stc_w)}W-{n_bat}x{int(battery.capacity_ah)}Ah{short}"
               f"-{'M' if kind == 'mppt' else 'P'}{int(controller.rated_current_a)}"
               + (f"-I{int(inverter.rated_power_w)}" if inv else "-DC"))
@@ -470,8 +488,20 @@ def _kit_row(scheme, system_v, module, n_series, n_parallel, battery, b_series, 
              f"{battery.capacity_ah:g} Ah), {kind.upper()} {controller.rated_current_a:.0f} A"
              + (f" x {n_controllers}" if n_controllers > 1 else "")
              + (f", inverter {inverter.rated_power_w:.0f} W" if inv else ""))
+    plant = scheme == "minigrid"
+    blocks = {
+        "pv_block_id": (f"PV{system_v}-{n_mod}x{int(module.power_stc_w)}W-M{int(controller.rated_current_a)}"
+                        if plant else ""),
+        "pv_block_label": (f"{array_wp / 1000:.2f} kWp ({n_series} x {n_parallel} x {module.power_stc_w:.0f} W "
+                           f"{module.module_id}) on a {controller.rated_current_a:.0f} A MPPT controller "
+                           f"{controller.controller_id}" if plant else ""),
+        "battery_block_id": f"BT{system_v}-{n_bat}x{int(battery.capacity_ah)}Ah{short}" if plant else "",
+        "battery_block_label": (f"{nominal_wh / 1000:.1f} kWh {chem.replace('_', '-')} string ({n_bat} x "
+                                f"{battery.nominal_voltage_v:g} V {battery.capacity_ah:g} Ah {battery.battery_id})"
+                                if plant else ""),
+    }
     return {
-        "kit_id": kit_id, "kit_label": label, "scheme": scheme, "topology": "ac" if inv else "dc",
+        "kit_id": kit_id, "kit_label": label, "scheme": scheme, "topology": "ac" if inv else "dc", **blocks,
         "system_voltage_v": system_v, "module_id": module.module_id, "modules_in_series": n_series,
         "strings_in_parallel": n_parallel * n_controllers, "modules": n_mod, "array_wp": array_wp,
         "battery_id": battery.battery_id, "chemistry": chem, "batteries_in_series": b_series,
@@ -546,21 +576,24 @@ def _bom(parts: _Parts, kit: dict) -> list[dict]:
     balance of system and installation."""
     lines = []
 
-    def add(kind, cid, desc, unit, qty, price):
+    plant = kit["scheme"] == "minigrid"
+
+    def add(kind, cid, desc, unit, qty, price, block="pv"):
         if qty > 0:
-            lines.append({"kit_id": kit["kit_id"], "component_kind": kind, "component_id": cid,
+            lines.append({"kit_id": kit["kit_id"], "block_kind": block if plant else "kit",
+                          "component_kind": kind, "component_id": cid,
                           "description": desc, "unit": unit, "quantity_per_kit": float(qty),
                           "unit_price_usd": float(price)})
 
     m = parts.modules[kit["module_id"]]
     add("pv_module", m.module_id, m.description, "each", kit["modules"], m.price_usd)
     b = parts.batteries[kit["battery_id"]]
-    add("battery", b.battery_id, b.description, "each", kit["batteries"], b.price_usd)
+    add("battery", b.battery_id, b.description, "each", kit["batteries"], b.price_usd, "battery")
     c = parts.controllers[kit["controller_id"]]
     add("charge_controller", c.controller_id, c.description, "each", kit["controllers"], c.price_usd)
     if kit["inverter_id"]:
         i = parts.inverters[kit["inverter_id"]]
-        add("inverter", i.inverter_id, i.description, "each", 1, i.price_usd)
+        add("inverter", i.inverter_id, i.description, "each", 1, i.price_usd, "inverter")
     runs = CABLE_RUNS_M[kit["scheme"]]
     n_ctrl = kit["controllers"]
     for name, per_kit in (("pv", n_ctrl), ("battery", n_ctrl), ("inverter", 1), ("load", n_ctrl)):
@@ -568,21 +601,29 @@ def _bom(parts: _Parts, kit: dict) -> list[dict]:
         if cid:
             cab = parts.cable[cid]
             add("cable", cid, f"{CIRCUITS[name]}: 2 conductors x {runs[name]:g} m, {kit[f'{name}_cable_mm2']:g} mm2 "
-                              f"copper; {cab.description}", "m", 2.0 * runs[name] * per_kit, cab.price_usd_per_m)
+                              f"copper; {cab.description}", "m", 2.0 * runs[name] * per_kit, cab.price_usd_per_m,
+                "inverter" if name == "inverter" else "pv")
     for name, qty, where in (("string", kit["strings_in_parallel"], "one per PV string"),
                              ("battery", n_ctrl, "at the battery, charge controller circuit"),
                              ("inverter", 1, "at the battery, inverter circuit")):
         fid = kit.get(f"{name}_fuse_id", "")
         if fid:
             f = parts.fuse[fid]
-            add("fuse", fid, f"{kit[f'{name}_fuse_a']:g} A, {where}; {f.description}", "each", qty, f.price_usd)
-    per = {"per_kit": 1, "per_block": 1, "per_module": kit["modules"], "per_battery": kit["batteries"]}
+            add("fuse", fid, f"{kit[f'{name}_fuse_a']:g} A, {where}; {f.description}", "each", qty, f.price_usd,
+                "inverter" if name == "inverter" else "pv")
+    # basis -> (quantity, the plant block it belongs to); a kit is one of each
+    per = {"per_kit": (1, "plant"), "per_block": (1, "pv"), "per_module": (kit["modules"], "pv"),
+           "per_battery": (kit["batteries"], "battery"), "per_battery_block": (1, "battery"),
+           "per_inverter": (1, "inverter"), "per_plant": (1, "plant")}
     for item in parts.bos:
         if item.scheme in (kit["scheme"], "all"):
-            add("balance_of_system", item.item_id, item.description, item.unit, item.quantity * per[item.basis], item.price_usd)
+            qty, block = per[item.basis]
+            add("balance_of_system", item.item_id, item.description, item.unit, item.quantity * qty, item.price_usd,
+                block)
     for item in parts.installation:
         if item.scheme == kit["scheme"]:
-            add("installation", item.item, item.description, "each", per[item.basis], item.cost_usd)
+            qty, block = per[item.basis]
+            add("installation", item.item, item.description, "each", qty, item.cost_usd, block)
     return lines
 
 
@@ -615,7 +656,8 @@ def _battery_options(batteries, system_v, usable_range, array_wp, max_parallel):
 
 
 def candidate_kits(lib: ComponentLibrary, *, voltages_v, max_parallel_strings: int,
-                   cond: DesignConditions) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
+                   cond: DesignConditions, max_plant_lifepo4_blocks: int | None = None
+                   ) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
     """All electrically valid SHS kits and minigrid blocks from a library.
 
     Household kits are 12 or 24 V, DC (loads on the controller's output, up to
@@ -638,6 +680,7 @@ def candidate_kits(lib: ComponentLibrary, *, voltages_v, max_parallel_strings: i
         ``rule`` (a key of :data:`REJECTION_RULES`) and a readable ``reason``.
     """
     b = _Builder(lib, cond, max_parallel_strings)
+    b.max_lfp_blocks = int(max_plant_lifepo4_blocks or PLANT_LFP_MAX_PARALLEL)
     for v in voltages_v:
         if v in (12, 24):
             b.household_kits(v)
@@ -655,6 +698,7 @@ class _Builder:
         self.modules = list(self.parts.modules.values())
         self.batteries = list(self.parts.batteries.values())
         self.inverters = sorted(self.parts.inverters.values(), key=lambda r: (r.rated_power_w, r.price_usd))
+        self.max_lfp_blocks = PLANT_LFP_MAX_PARALLEL
         self.rows: list[dict] = []
         self.rejected: list[dict] = []
         self._ctrl: dict = {}
@@ -741,9 +785,15 @@ class _Builder:
                                     self.add("shs", v, module, ns, npar, bat, bs, bp, chosen, inv, design)
 
     def plant_blocks(self, v: int) -> None:
+        """Plant templates at ``v``: every PV block (the longest valid string of a module of at
+        least :data:`PLANT_MIN_MODULE_W` on an MPPT controller, as many strings as its current
+        rating takes) with every battery block (one string of at least
+        :data:`PLANT_MIN_BATTERY_BLOCK_WH`) its string voltage can charge, and every inverter."""
         cond = self.cond
-        lo, hi = BLOCK_INVERTER_PER_WP
+        pv_blocks = []
         for module in self.modules:
+            if module.power_stc_w < PLANT_MIN_MODULE_W:
+                continue
             for c in self.controllers("mppt", v):
                 best, rule, why = None, "", ""
                 for ns in range(1, 8):
@@ -768,19 +818,31 @@ class _Builder:
                 if why:
                     self.reject("minigrid", design, "system_voltage", why)
                     continue
-                invs = [i for i in self.inverters if i.battery_voltage_v == v and lo * wp <= i.rated_power_w <= hi * wp]
-                for bat, bs, bp in self.banks("minigrid", design, v, BLOCK_USABLE_WH_PER_WP, wp):
-                    bank = f"{design} + {bs}x{bp} {bat.battery_id}"
-                    rule, why = string_voltage_check(module, best, v, bat.chemistry, "mppt", cond, c.max_pv_voltage_v)
-                    if rule:
-                        self.reject("minigrid", bank, rule, why)
-                        continue
-                    if not invs:
-                        self.reject("minigrid", bank, "inverter_rating",
-                                    f"no {v} V inverter rated {lo * wp:.0f}-{hi * wp:.0f} W ({lo:g}-{hi:g} W per Wp) "
-                                    f"in the library")
-                    for inv in invs:
-                        self.add("minigrid", v, module, best, npar, bat, bs, bp, c, inv, bank)
+                pv_blocks.append((module, best, npar, c, design))
+        strings = []
+        for bat in self.batteries:
+            bs = battery_strings(v, bat.nominal_voltage_v)
+            if bs is None:
+                continue
+            wh = bs * bat.nominal_voltage_v * bat.capacity_ah
+            if wh < PLANT_MIN_BATTERY_BLOCK_WH:
+                self.reject("minigrid", f"battery block {bs} x {bat.battery_id}", "battery_block_size",
+                            f"one {v} V string of {bat.battery_id} holds {wh / 1000:.1f} kWh, under the "
+                            f"{PLANT_MIN_BATTERY_BLOCK_WH / 1000:g} kWh of a plant battery block")
+                continue
+            strings.append((bat, bs))
+        invs = [i for i in self.inverters if i.battery_voltage_v == v]
+        if pv_blocks and strings and not invs:
+            self.reject("minigrid", f"{v} V plant", "inverter_rating", f"no {v} V inverter in the library")
+        for module, ns, npar, c, design in pv_blocks:
+            for bat, bs in strings:
+                bank = f"{design} + {bs} x {bat.battery_id}"
+                rule, why = string_voltage_check(module, ns, v, bat.chemistry, "mppt", cond, c.max_pv_voltage_v)
+                if rule:
+                    self.reject("minigrid", bank, rule, why)
+                    continue
+                for inv in invs:
+                    self.add("minigrid", v, module, ns, npar, bat, bs, 1, c, inv, bank)
 
     def tables(self) -> tuple[pd.DataFrame, pd.DataFrame, pd.DataFrame]:
         rows = self.rows
@@ -799,11 +861,22 @@ class _Builder:
         kits["battery_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "battery")).fillna(0.0)
         kits["controller_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "charge_controller")).fillna(0.0)
         kits["inverter_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "inverter")).fillna(0.0)
+        bom["item_id"] = purchase_item_ids(bom, kits)
+        for part in PLANT_PARTS:  # a plant template's capex by block (a kit is all "pv")
+            lines = bom[bom.block_kind.isin([part, "kit"] if part == "pv" else [part])]
+            cost = (lines.quantity_per_kit * lines.unit_price_usd).groupby(lines.kit_id).sum()
+            kits[f"{part}_part_capex_usd"] = kits["kit_id"].map(cost).fillna(0.0)
+        lead = kits["chemistry"].eq("lead_acid")
+        kits["max_battery_blocks"] = np.where(kits["scheme"].eq("minigrid"),
+                                              np.where(lead, self.max_parallel, self.max_lfp_blocks), 1)
         rejected = pd.DataFrame(self.rejected, columns=["scheme", "design", "rule", "reason"]).drop_duplicates()
         return kits, bom, rejected.reset_index(drop=True)
 
 
-USABLE_RATIO_TARGETS = {"shs": (1.5, 2.5, 4.0), "minigrid": (2.0, 3.0, 4.5)}
+USABLE_RATIO_TARGETS = {"shs": (1.5, 2.5, 4.0)}
+#: The parts of a plant's capital cost, each bought as many times as the plant has of it:
+#: PV blocks, battery blocks, inverters, and what is bought once per plant.
+PLANT_PARTS = ("pv", "battery", "inverter", "plant")
 
 
 def thin_candidates(kits: pd.DataFrame, lib: ComponentLibrary, capex_usd: dict | None = None) -> pd.DataFrame:
@@ -815,22 +888,17 @@ def thin_candidates(kits: pd.DataFrame, lib: ComponentLibrary, capex_usd: dict |
        materials) or, without it, by the price of the main components.
     2. Per array size, keep the storage options nearest each ratio of usable
        Wh per Wp in :data:`USABLE_RATIO_TARGETS` (per chemistry).
-    3. Minigrid blocks use modules of at least 250 W and the inverter nearest
-       the array power (common practice).
+    3. Minigrid plant templates: of PV blocks with the same array power, and of battery blocks
+       of the same chemistry and nominal energy, keep the cheapest by their main components
+       (every inverter stays: the planner counts them per village).
     """
     k = kits.copy()
     if capex_usd is not None:
         k["_capex"] = k["kit_id"].map(capex_usd).astype(float)
     else:
         k["_capex"] = [sum(_component_price(lib, r)) for r in k.to_dict("records")]
-    mg = k.scheme == "minigrid"
-    big = k["module_id"].map(lib.pv_modules["power_stc_w"]) >= 250
-    k = k[~mg | big]
-    blk = k[k.scheme == "minigrid"]
-    if not blk.empty:
-        gap = (blk["max_load_w"] - blk["array_wp"]).abs()
-        keep = gap.groupby([blk.module_id, blk.controller_id, blk.battery_id, blk.batteries]).idxmin()
-        k = pd.concat([k[k.scheme != "minigrid"], k.loc[keep.values]])
+    plants = _thin_plant_templates(k[k.scheme == "minigrid"], lib)
+    k = k[k.scheme != "minigrid"]
     same = ["scheme", "topology", "system_voltage_v", "controller_kind", "chemistry", "array_wp", "battery_usable_wh"]
     k = k.sort_values(["_capex", "kit_id"]).drop_duplicates(same)
     k["_ratio"] = k["battery_usable_wh"] / k["array_wp"]
@@ -838,8 +906,24 @@ def thin_candidates(kits: pd.DataFrame, lib: ComponentLibrary, capex_usd: dict |
     for (scheme, *_), g in k.groupby(["scheme", "topology", "system_voltage_v", "controller_kind", "chemistry", "array_wp"]):
         for target in USABLE_RATIO_TARGETS[scheme]:
             keep_idx.add((g["_ratio"] - target).abs().idxmin())
-    k = k.loc[sorted(keep_idx)]
+    k = pd.concat([k.loc[sorted(keep_idx)], plants])
     return k.drop(columns=["_capex", "_ratio"]).sort_values(["scheme", "array_wp", "battery_usable_wh", "kit_id"]).reset_index(drop=True)
+
+
+def _thin_plant_templates(t: pd.DataFrame, lib: ComponentLibrary) -> pd.DataFrame:
+    """Plant templates whose PV block is the cheapest of its array power and whose battery block
+    the cheapest of its chemistry and nominal energy (main components' prices)."""
+    if t.empty:
+        return t
+    pv_price = (t.modules * t.module_id.map(lib.pv_modules.price_usd)
+                + t.controllers * t.controller_id.map(lib.charge_controllers.price_usd))
+    bat_price = t.batteries * t.battery_id.map(lib.batteries.price_usd)
+    pv = pd.DataFrame({"id": t.pv_block_id, "key": t.array_wp, "price": pv_price}).sort_values(["price", "id"])
+    bt = pd.DataFrame({"id": t.battery_block_id, "key": t.chemistry + t.battery_nominal_wh.round(0).astype(str),
+                       "price": bat_price}).sort_values(["price", "id"])
+    best_pv = set(pv.drop_duplicates("key").id)
+    best_bt = set(bt.drop_duplicates("key").id)
+    return t[t.pv_block_id.isin(best_pv) & t.battery_block_id.isin(best_bt)]
 
 
 def _component_price(lib: ComponentLibrary, kit: dict):
@@ -933,3 +1017,85 @@ def kernel_parameters(kits: pd.DataFrame, tables, *, reconnect_hysteresis_soc: f
 #: On-state voltage of a shunt controller's switch while it short-circuits the array, V
 #: (a MOSFET and its wiring; # common practice).
 SHUNT_ON_VOLTAGE_V = 0.3
+
+
+#: Purchase item of a plant's once-per-plant lines (``per_plant`` balance of system, installation).
+PLANT_ITEM_ID = "PLANT-SITE-WORKS"
+
+
+def purchase_item_ids(bom: pd.DataFrame, kits: pd.DataFrame) -> pd.Series:
+    """What procurement buys each BOM line as: the kit for household kits; for a plant template's
+    lines the PV block, battery block or inverter they belong to (or :data:`PLANT_ITEM_ID`)."""
+    ids = kits.set_index("kit_id")
+    item = bom.kit_id.astype(object).copy()
+    for kind, col in (("pv", "pv_block_id"), ("battery", "battery_block_id"), ("inverter", "inverter_id")):
+        sel = (bom.block_kind == kind).to_numpy()
+        item[sel] = bom.kit_id[sel].map(ids[col]).to_numpy()
+    item[(bom.block_kind == "plant").to_numpy()] = PLANT_ITEM_ID
+    return item
+
+
+def plant_quantities(kit_rows: pd.DataFrame, pv_blocks, battery_blocks, inverters) -> pd.DataFrame:
+    """What one kit or one plant of each option amounts to: ``kit_rows`` are the options' kit
+    rows (a plant template is one block of each kind) and the counts their PV blocks, battery
+    blocks and inverters (1 for household kits).
+
+    Returns a frame aligned with ``kit_rows`` (index 0..n-1): ``capex_usd`` (each part's capital
+    cost x its count, :data:`PLANT_PARTS`), ``battery_capex_usd``, ``controller_capex_usd`` and
+    ``inverter_capex_usd`` (what a replacement of that component costs), ``array_wp``,
+    ``battery_nominal_wh``, ``battery_usable_wh``, ``battery_ah`` (the bank, strings in
+    parallel), ``max_load_w``, ``modules``, ``batteries``, ``controllers``, ``inverters``.
+    """
+    n_pv = np.asarray(pv_blocks, float)
+    n_bat = np.asarray(battery_blocks, float)
+    n_inv = np.asarray(inverters, float)
+    k = kit_rows.reset_index(drop=True)
+
+    def col(name, default=np.nan):  # tables without plant columns are household kits
+        return k[name].to_numpy(float) if name in k else np.full(len(k), default)
+
+    has_inv = (k["inverter_id"].astype(str) != "").to_numpy() if "inverter_id" in k else np.zeros(len(k), bool)
+    capex = (col("pv_part_capex_usd", np.nan) * n_pv + col("battery_part_capex_usd", 0.0) * n_bat
+             + col("inverter_part_capex_usd", 0.0) * n_inv + col("plant_part_capex_usd", 0.0))
+    capex = np.where(np.isfinite(capex), capex, col("capex_usd"))  # no split: the whole kit, once
+    return pd.DataFrame({
+        "capex_usd": capex,
+        "battery_capex_usd": col("battery_capex_usd") * n_bat,
+        "controller_capex_usd": col("controller_capex_usd") * n_pv,
+        "inverter_capex_usd": col("inverter_capex_usd") * n_inv,
+        "array_wp": col("array_wp") * n_pv,
+        "battery_nominal_wh": col("battery_nominal_wh") * n_bat,
+        "battery_usable_wh": col("battery_usable_wh") * n_bat,
+        "battery_ah": col("battery_ah") * n_bat,
+        "max_load_w": col("max_load_w") * n_inv,
+        "modules": col("modules") * n_pv,
+        "batteries": col("batteries") * n_bat,
+        "controllers": col("controllers") * n_pv,
+        "inverters": np.where(has_inv, n_inv, 0.0),
+    })
+
+
+def plant_parameters(params: np.ndarray, pv_blocks, battery_blocks, inverters) -> np.ndarray:
+    """Dispatch kernel parameters (:data:`fleet.dispatch.KIT_PARAMS`) of plants: rows of
+    template ``params`` (one block of each kind) with their PV blocks, battery blocks and
+    inverters in parallel on one DC bus. Array, controller rating, self-consumption and
+    night-time reverse current scale with the PV blocks; the bank's Ah with the battery blocks
+    (strings in parallel); the output rating and no-load power with the inverters, whose shared
+    load-dependent loss ``q P^2`` per inverter becomes ``q P^2 / n`` for the plant (Jantsch et al.
+    1992 model, load shared equally); an inverter cut-off referenced to the rated C-rate follows
+    the plant's inverter power over its bank. A plant of n of each is the kernel's ``scale = n``
+    of one block (the same state of charge, n times every flow)."""
+    from .dispatch import K
+    out = np.array(params, dtype=np.float64, copy=True)
+    n_pv = np.asarray(pv_blocks, float)
+    n_bat = np.asarray(battery_blocks, float)
+    n_inv = np.asarray(inverters, float)
+    for name in ("array_multiplier", "controller_max_a", "controller_self_w", "reverse_current_a"):
+        out[:, K[name]] *= n_pv
+    out[:, K["battery_ah"]] *= n_bat
+    out[:, K["max_load_w"]] *= n_inv
+    out[:, K["inverter_no_load_w"]] *= n_inv
+    out[:, K["inverter_quadratic_per_w"]] /= n_inv
+    ac = out[:, K["ac"]] > 0.5
+    out[:, K["disconnect_ref_c"]] *= np.where(ac, n_inv / n_bat, 1.0)
+    return out

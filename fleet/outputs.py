@@ -17,7 +17,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from .plan import PlanResult, assigned_options
+from .kits import PLANT_ITEM_ID, plant_quantities
+from .plan import PlanResult, assigned_options, option_counts
 
 #: Cautions beyond the report writers' standard ones (fleet.report DEFAULT_CAUTIONS).
 CAUTIONS = [
@@ -56,9 +57,12 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
     chosen = assigned_options(result)
     kits = result.kits.set_index("kit_id")
     c = chosen.merge(units[["unit_id", "daily_energy_wh", "peak_power_w"]], on="unit_id", how="left")
-    c["kits_bought"] = c["count"] * c["blocks"]
-    c["array_kwp"] = c.kit_id.map(kits.array_wp) * c.kits_bought / 1000.0
-    c["battery_kwh"] = c.kit_id.map(kits.battery_nominal_wh) * c.kits_bought / 1000.0
+    n_pv, n_bat, n_inv = option_counts(c)
+    q = plant_quantities(kits.loc[c.kit_id.to_numpy()].reset_index(), n_pv, n_bat, n_inv)
+    # household kits bought, or a plant's PV blocks + battery blocks + inverters
+    c["kits_bought"] = c["count"] * np.where(c.scheme == "minigrid", n_pv + n_bat + n_inv, 1)
+    c["array_kwp"] = q.array_wp.to_numpy() * c["count"].to_numpy() / 1000.0
+    c["battery_kwh"] = q.battery_nominal_wh.to_numpy() * c["count"].to_numpy() / 1000.0
     c["demand_kwh_day"] = c.daily_energy_wh * c["count"] / 1000.0
     c["unmet_kwh_day"] = c.demand_kwh_day * c.unmet_fraction_design
     c["critical_kwh_day"] = c.unit_id.map(units.set_index("unit_id").critical_wh_day) * c["count"] / 1000.0
@@ -73,7 +77,7 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         demand_kwh_day=("demand_kwh_day", "sum"), unmet_kwh_day=("unmet_kwh_day", "sum"),
         critical_kwh_day=("critical_kwh_day", "sum"), critical_unmet_kwh_day=("critical_unmet_kwh_day", "sum"),
         lowest_tier_reached=("tier_achieved_design", "min"), below_tier=("tier_shortfall", "sum"))
-    label = c.assign(part=lambda d: np.where(d.scheme == "minigrid", d.blocks.astype(str) + " x " + d.kit_id,
+    label = c.assign(part=lambda d: np.where(d.scheme == "minigrid", "plant: " + d.plant_design.astype(str),
                                              d.group + ": " + d["count"].astype(str) + " x " + d.kit_id))
     per_site["kits"] = label.groupby("site_id").part.agg("; ".join)
     un = result.unserved
@@ -109,11 +113,10 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
             site_layer[name] = pd.Series(given, dtype=object)
 
     per_site_full = sites[["site_id", "site_name", "district", "depot", "scheme"]].join(plan_cols)
-    # kit counts per depot for the bill of materials
+    # what procurement buys (household kits; a plant's blocks and inverters) per depot
     c["depot"] = c.site_id.map(sites.depot)
-    kit_counts = c.groupby(["scheme", "kit_id", "depot"], as_index=False).kits_bought.sum().rename(columns={"kits_bought": "kits"})
-    chosen_ids = kit_counts.kit_id.unique()
-    bom = result.bom[result.bom.kit_id.isin(chosen_ids)].merge(result.kits[["kit_id", "kit_label", "scheme"]], on="kit_id")
+    kit_counts, bom = purchase_items(c, result.kits, result.bom)
+    chosen_ids = c.kit_id.unique()
 
     def rollup(by: str) -> pd.DataFrame:
         g = per_site_full.groupby(by)
@@ -128,25 +131,16 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         un = c.assign(by=c.site_id.map(sites[by])).groupby("by")[["unmet_kwh_day", "demand_kwh_day"]].sum()
         t["unmet energy, design year (%)"] = 100 * un.unmet_kwh_day / un.demand_kwh_day.replace(0, np.nan)
         t["sites with a unit not served"] = per_site_full.assign(x=per_site_full.not_served != "").groupby(by).x.sum()
-        by_type = (c.assign(by=c.site_id.map(sites[by])).pivot_table(index="by", columns="kit_id", values="kits_bought",
-                                                                      aggfunc="sum", fill_value=0))
-        by_type.columns = [f"{k} (kits)" for k in by_type.columns]
+        items = _items_by(c, sites[by])
+        unit_word = dict(zip(items.kit_id, np.where(items.scheme == "shs", "kits", "units")))
+        by_type = items.pivot_table(index="by", columns="kit_id", values="kits", aggfunc="sum", fill_value=0)
+        by_type.columns = [f"{k} ({unit_word[k]})" for k in by_type.columns]
         t = t.join(by_type).fillna({col: 0 for col in by_type.columns})
         return t.reset_index().rename(columns={by: by})
 
     by_district = rollup("district")
     by_depot = rollup("depot")
-    kt = kit_counts.groupby(["scheme", "kit_id"], as_index=False).kits.sum()
-    kt = kt.merge(result.kits, on=["scheme", "kit_id"])
-    kit_types = pd.DataFrame({
-        "scheme": kt.scheme, "kit_id": kt.kit_id, "description": kt.kit_label,
-        "kits or blocks deployed": kt.kits, "array (Wp)": kt.array_wp, "battery nominal (Wh)": kt.battery_nominal_wh,
-        "battery usable (Wh)": kt.battery_usable_wh, "system voltage (V)": kt.system_voltage_v,
-        "controller": kt.controller_id, "inverter": kt.inverter_id, "output rating (W)": kt.max_load_w,
-        "capex per kit (USD)": kt.capex_usd,
-        "low-voltage disconnect (SOC)": kt.soc_lvd,
-        "reconnect (SOC)": np.minimum(kt.soc_lvd + result.config["system"]["reconnect_hysteresis_soc"], 0.95),
-    })
+    kit_types = catalogue_types(kit_counts, result.kits, result.config["system"]["reconnect_hysteresis_soc"])
     n_hh = int(hh.sum())
     total_demand = float(per_site_full.demand_kwh_day.sum())
     served_demand = float(c.demand_kwh_day.sum())
@@ -156,7 +150,10 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         ("health posts", int(result.sites.health_posts.sum()), "facilities"),
         ("schools", int(result.sites.schools.sum()), "facilities"),
         ("solar home system kits", int(c[c.scheme == "shs"].kits_bought.sum()), "kits"),
-        ("minigrid plant blocks", int(c[c.scheme == "minigrid"].kits_bought.sum()), "blocks"),
+        ("minigrid plants", int(c[c.scheme == "minigrid"]["count"].sum()), "plants"),
+        ("  their PV blocks", int((c["count"] * c.blocks)[c.scheme == "minigrid"].sum()), "blocks"),
+        ("  their battery blocks", int((c["count"] * c.battery_blocks)[c.scheme == "minigrid"].sum()), "blocks"),
+        ("  their inverters", int((c["count"] * c.inverters)[c.scheme == "minigrid"].sum()), "inverters"),
         ("kit types in the catalogue (SHS)", len(result.catalogues["shs"].chosen_kits), "types"),
         ("block types in the catalogue (minigrid)", len(result.catalogues["minigrid"].chosen_kits), "types"),
         ("array", float(c.array_kwp.sum()), "kWp"),
@@ -184,7 +181,7 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
         "lowest_tier_reached": "lowest tier reached, design year",
         "households_below_their_tier": "households or units below their tier (count)",
         "ghi_kwh_m2_day": "GHI (kWh/m2/day)", "temp_mean_default_used": "default temperature used"})
-    by_scheme = {scheme: monthly_balance(tr, tr.get("blocks", 1)) for scheme, tr in result.traces.items()}
+    by_scheme = {scheme: monthly_balance(tr) for scheme, tr in result.traces.items()}
     monthly = [by_scheme[scheme].reset_index().assign(
                    scheme=scheme, unit_id=tr["unit_id"], kit_id=tr["kit_id"], weather_year=tr["weather_year"] + 1)
                for scheme, tr in result.traces.items()]
@@ -204,6 +201,102 @@ def plan_tables(result: PlanResult) -> dict[str, pd.DataFrame]:
             "kit_types": kit_types, "comparisons": result.comparisons,
             "cost_curves": result.cost_curves, "monthly_balance": monthly_table, "unserved": unserved_table,
             "_bom": bom, "_kit_counts": kit_counts, "_kit_specs": specs, "_monthly": by_scheme, "_site_layer": site_layer, "_chosen": c}
+
+
+def _items_by(c: pd.DataFrame, key: pd.Series) -> pd.DataFrame:
+    """Purchase items (``kit_id``: a household kit, or a plant's block or inverter type) and how
+    many of each, per value of ``key`` (a site column, indexed by site id), as column ``by``."""
+    n_pv, n_bat, n_inv = option_counts(c)
+    by = c.site_id.map(key).to_numpy()
+    mg = (c.scheme == "minigrid").to_numpy()
+    count = c["count"].to_numpy(float)
+    parts = [pd.DataFrame({"scheme": "shs", "kit_id": c.kit_id[~mg].to_numpy(), "by": by[~mg], "kits": count[~mg]})]
+    for col, n in (("pv_block_id", n_pv), ("battery_block_id", n_bat), ("inverter_id", n_inv)):
+        if mg.any():
+            parts.append(pd.DataFrame({"scheme": "minigrid", "kit_id": c[col][mg].to_numpy(), "by": by[mg],
+                                       "kits": (count * n)[mg]}))
+    out = pd.concat(parts, ignore_index=True)
+    out["kits"] = out["kits"].round().astype(int)
+    return out
+
+
+def purchase_items(c: pd.DataFrame, kits: pd.DataFrame, bom: pd.DataFrame) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """What procurement buys for the assigned options ``c`` (with a ``depot`` column): counts per
+    (scheme, item, depot) as ``kit_counts`` (``kit_id`` is the item: a household kit, or a plant's
+    PV block, battery block or inverter type) and the BOM lines of one of each item (a block's
+    lines from the first plant template that has it; once-per-plant lines as their own item)."""
+    items = _items_by(c, c.drop_duplicates("site_id").set_index("site_id").depot)
+    plants = c[c.scheme == "minigrid"]
+    if "item_id" in bom and len(plants) and (bom.block_kind == "plant").any():
+        once = plants.groupby(plants.depot)["count"].sum()
+        items = pd.concat([items, pd.DataFrame({"scheme": "minigrid", "kit_id": PLANT_ITEM_ID, "by": once.index,
+                                                "kits": once.to_numpy().astype(int)})], ignore_index=True)
+    counts = (items.groupby(["scheme", "kit_id", "by"], as_index=False).kits.sum()
+              .rename(columns={"by": "depot"}))
+    counts = counts[counts.kits > 0]
+    used = c.kit_id.unique()
+    lines = bom[bom.kit_id.isin(used)]
+    if "item_id" in lines:
+        lines = lines.sort_values("kit_id", kind="stable")
+        first = lines.drop_duplicates("item_id")[["item_id", "kit_id"]]
+        lines = lines.merge(first, on=["item_id", "kit_id"])
+        lines = lines[lines.item_id.isin(counts.kit_id)]
+        label = _item_labels(kits)
+        lines = lines.assign(kit_id=lines.item_id).drop(columns=["item_id", "block_kind"], errors="ignore")
+        lines = lines.merge(pd.DataFrame({"kit_id": list(label), "kit_label": list(label.values())}), on="kit_id")
+        lines["scheme"] = np.where(lines.kit_id.isin(kits.kit_id[kits.scheme == "shs"]), "shs", "minigrid")
+    else:
+        lines = lines.merge(kits[["kit_id", "kit_label", "scheme"]], on="kit_id")
+    return counts.reset_index(drop=True), lines.reset_index(drop=True)
+
+
+def _item_labels(kits: pd.DataFrame) -> dict:
+    """Description of every purchase item: household kits, plant block types and inverters."""
+    label = dict(zip(kits.kit_id, kits.kit_label))
+    mg = kits[kits.scheme == "minigrid"]
+    label.update(dict(zip(mg.pv_block_id, "PV block: " + mg.pv_block_label)))
+    label.update(dict(zip(mg.battery_block_id, "battery block: " + mg.battery_block_label)))
+    label.update({i: f"inverter {i}, {w:.0f} W" for i, w in zip(mg.inverter_id, mg.inverter_rated_w)})
+    label[PLANT_ITEM_ID] = "once-per-plant works and materials"
+    return label
+
+
+def catalogue_types(kit_counts: pd.DataFrame, kits: pd.DataFrame, hysteresis_soc: float) -> pd.DataFrame:
+    """The catalogue as deployed: household kit types and a plant's block and inverter types,
+    with how many were deployed and what each is."""
+    n = kit_counts.groupby(["scheme", "kit_id"], as_index=False).kits.sum()
+    shs = n[n.scheme == "shs"].merge(kits, on=["scheme", "kit_id"])
+    rows = pd.DataFrame({
+        "scheme": shs.scheme, "kit_id": shs.kit_id, "description": shs.kit_label,
+        "kits or blocks deployed": shs.kits, "array (Wp)": shs.array_wp, "battery nominal (Wh)": shs.battery_nominal_wh,
+        "battery usable (Wh)": shs.battery_usable_wh, "system voltage (V)": shs.system_voltage_v,
+        "controller": shs.controller_id, "inverter": shs.inverter_id, "output rating (W)": shs.max_load_w,
+        "capex per kit (USD)": shs.capex_usd,
+        "low-voltage disconnect (SOC)": shs.soc_lvd,
+        "reconnect (SOC)": np.minimum(shs.soc_lvd + hysteresis_soc, 0.95),
+    })
+    mg = kits[kits.scheme == "minigrid"]
+    label = _item_labels(kits)
+    blocks = []
+    for col, part in (("pv_block_id", "pv"), ("battery_block_id", "battery"), ("inverter_id", "inverter")):
+        first = mg.drop_duplicates(col).set_index(col)
+        for r in n[(n.scheme == "minigrid") & n.kit_id.isin(first.index)].itertuples(index=False):
+            f = first.loc[r.kit_id]
+            blocks.append({
+                "scheme": "minigrid", "kit_id": r.kit_id, "description": label.get(r.kit_id, ""),
+                "kits or blocks deployed": r.kits,
+                "array (Wp)": f.array_wp if part == "pv" else np.nan,
+                "battery nominal (Wh)": f.battery_nominal_wh if part == "battery" else np.nan,
+                "battery usable (Wh)": f.battery_usable_wh if part == "battery" else np.nan,
+                "system voltage (V)": f.system_voltage_v,
+                "controller": f.controller_id if part == "pv" else "",
+                "inverter": r.kit_id if part == "inverter" else "",
+                "output rating (W)": f.max_load_w if part == "inverter" else np.nan,
+                "capex per kit (USD)": f[f"{part}_part_capex_usd"],
+                "low-voltage disconnect (SOC)": f.soc_lvd if part == "battery" else np.nan,
+                "reconnect (SOC)": min(f.soc_lvd + hysteresis_soc, 0.95) if part == "battery" else np.nan,
+            })
+    return pd.concat([rows, pd.DataFrame(blocks, columns=rows.columns)], ignore_index=True)
 
 
 def _clean_zero(value: float, scale: float) -> float:
@@ -261,6 +354,7 @@ def figures(result: PlanResult, tables: dict) -> dict:
     figs = {}
     layer = tables["_site_layer"]
     lab = layer.plan_kits.where(layer.plan_kits != "", "no kit").str.split(";").str[0].str.split(": ").str[-1].str.split(" x ").str[-1]
+    lab = lab.where(~layer.plan_kits.str.startswith("plant:"), "minigrid plant")
     figs["Sites by main kit type"] = plots.site_map(layer.longitude.to_numpy(), layer.latitude.to_numpy(), lab.to_numpy(),
                                                      "Sites coloured by their main kit or block type")
     c = tables["_chosen"]
@@ -272,7 +366,7 @@ def figures(result: PlanResult, tables: dict) -> dict:
             np.arange(len(tr["soc"])), tr["soc"], tr["connected"] < 0.5,
             f"{tr['unit_id']} with {tr['kit_id']} (design weather year {tr['weather_year'] + 1})")
     for scheme, tr in result.traces.items():
-        what = f"per plant ({tr['blocks']} blocks)" if scheme == "minigrid" else "per kit"
+        what = f"per plant ({tr.get('plant_design', '')})" if scheme == "minigrid" else "per kit"
         figs[f"Monthly energy balance at a typical {scheme} unit"] = plots.monthly_energy_balance(
             tables["_monthly"][scheme],
             f"{tr['unit_id']} with {tr['kit_id']}, design weather year, {what}")

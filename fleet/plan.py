@@ -24,23 +24,29 @@ import numpy as np
 import pandas as pd
 
 from . import battery, dispatch, economics, rule_of_thumb, transport
-from .catalogue import CatalogueResult, custom_best, optimise_catalogue
+from .catalogue import CatalogueResult, custom_best, optimise_block_catalogue, optimise_catalogue
 from .components import ComponentLibrary
 from .config import ProgramConfig
 from .demand import HOURS_PER_YEAR, service_units, settings_from_config, unit_loads
 from .errors import InputError, Problem
 from .battery import voltage_tables
 from .iv import array_power_per_string, tables_for_kits
-from .kits import DesignConditions, candidate_kits, kernel_parameters, surge_ok, unit_surge_need_w
+from .kits import (DesignConditions, candidate_kits, kernel_parameters, plant_parameters, plant_quantities, surge_ok,
+                   unit_surge_need_w)
 from .pv import combined_losses_fraction
 from .resource import EMBEDDED, site_weather_from, utc_offset_hours
 
 #: Kits whose array would give more than this many times the unit's yearly
 #: demand are not offered to it (wasteful; keeps the search small).
 OVERSIZE_LIMIT = 6.0
-#: Block counts tried per minigrid site and block type, as multiples of the
+#: PV block counts tried per minigrid village and plant template, as multiples of the
 #: count whose yearly array yield equals the yearly demand.
-BLOCK_COUNT_FACTORS = (0.9, 1.1, 1.3, 1.55, 1.85, 2.2)
+BLOCK_COUNT_FACTORS = (1.0, 1.25, 1.55, 1.95, 2.4)
+#: Battery block counts tried with each, as usable storage in days of the village's daily
+#: energy (the last one is what the rule of thumb asks for: 2 days through the inverter).
+STORAGE_DAYS = (0.45, 0.8, 1.3, 2.2)
+#: The block kinds a minigrid catalogue standardises (columns of the kit and option tables).
+BLOCK_KINDS = ("pv_block_id", "battery_block_id", "inverter_id")
 
 
 class _Quiet:
@@ -184,8 +190,10 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
     rating, its motor start exceeds the inverter's surge rating, or its array cannot yield the
     demand (less the allowed unmet share) even in the best weather year; it is not offered when its
     array yields more than ``OVERSIZE_LIMIT`` times the demand in a mean year (the program's
-    smallest kits always are). Minigrid options: each block type at the block counts that cover the
-    peak (and motor start) and ``BLOCK_COUNT_FACTORS`` times the energy need in a mean year.
+    smallest kits always are). Minigrid options: each plant template (:mod:`fleet.kits`) with
+    ``BLOCK_COUNT_FACTORS`` times the PV blocks whose mean-year yield meets the demand, battery
+    blocks for ``STORAGE_DAYS`` of the daily energy (at most the template's parallel limit), and
+    the fewest inverters that carry the peak and start the largest motor together.
     Vectorised over units x kits; options are listed unit by unit, kits in table order.
     """
     loss = array_losses(cfg)
@@ -214,21 +222,28 @@ def build_pairs(units, design, kits, weather, sites, cfg) -> tuple[pd.DataFrame,
                  & (wp > 2 * smallest.reindex(k_scheme).to_numpy(float))[None, :])
     offered = (shs & (reason == 0) & ~oversized) | (same & ~shs)
     uu, kk = np.nonzero(offered)
-    blocks = [np.array([1])] * len(uu)
+    one = np.ones((1, 3), np.int64)
+    counts = [one] * len(uu)  # (PV blocks, battery blocks, inverters) per option
+    usable = kits.battery_usable_wh.to_numpy(float)
+    cap = kits.max_battery_blocks.to_numpy(np.int64) if "max_battery_blocks" in kits else np.ones(len(kits), np.int64)
+    surge_w = kits.inverter_surge_w.to_numpy(float) if "inverter_surge_w" in kits else np.zeros(len(kits))
+    daily_wh = demand_kwh * 1000.0 / 365.0
     for j in np.flatnonzero(u_scheme[uu] != "shs"):
         u, k = uu[j], kk[j]
         n_energy = demand_kwh[u] / max(wp[k] * yield_mean[s_idx[u]], 1e-9)
-        n_peak = int(np.ceil(peak[u] / max_load[k]))
-        n_peak = max(n_peak, int(np.ceil(surge_need[u] / kits.inverter_surge_w.iat[k])))  # blocks share a motor start
-        blocks[j] = np.array(sorted({max(1, n_peak, int(np.ceil(n_energy * f))) for f in BLOCK_COUNT_FACTORS}))
-    reps = np.array([len(b) for b in blocks], dtype=np.int64)
+        n_pv = sorted({max(1, int(np.ceil(n_energy * f))) for f in BLOCK_COUNT_FACTORS})
+        n_bat = sorted({int(min(cap[k], max(1, np.ceil(d * daily_wh[u] / usable[k])))) for d in STORAGE_DAYS})
+        # inverters share the load and a motor start (# common practice for paralleled inverters)
+        n_inv = max(1, int(np.ceil(peak[u] / max_load[k])), int(np.ceil(surge_need[u] / max(surge_w[k], 1e-9))))
+        counts[j] = np.array([(a, b, n_inv) for a in n_pv for b in n_bat], np.int64)
+    reps = np.array([len(c) for c in counts], dtype=np.int64)
     unit_rep = np.repeat(uu, reps)
+    allc = np.concatenate(counts) if len(counts) else np.zeros((0, 3), np.int64)
     pairs = pd.DataFrame({"unit_idx": unit_rep, "kit_idx": np.repeat(kk, reps), "site_idx": s_idx[unit_rep],
-                          "blocks": np.concatenate(blocks) if len(blocks) else np.zeros(0, np.int64),
+                          "blocks": allc[:, 0], "battery_blocks": allc[:, 1], "inverters": allc[:, 2],
                           "target": site_target[unit_rep]})
     su, sk = np.nonzero(shs & (reason > 0))
     unit_ids, kit_ids = units.unit_id.to_numpy(), kits.kit_id.to_numpy()
-    surge_w = kits.inverter_surge_w.to_numpy(float) if "inverter_surge_w" in kits else np.zeros(len(kits))
     text = {1: lambda u, k: f"peak load {peak[u]:.0f} W exceeds the kit's output rating {max_load[k]:.0f} W",
             2: lambda u, k: (f"motor starting needs {surge_need[u]:.0f} W, above the inverter's surge rating "
                              f"{surge_w[k]:.0f} W"),
@@ -293,16 +308,19 @@ def battery_temperature_c(sites, cfg: ProgramConfig, weather_info: pd.DataFrame 
     return mean + offset
 
 
-def option_costs(kit_rows: pd.DataFrame, battery_life_years, delivery_usd, cfg: ProgramConfig):
+def option_costs(kit_rows: pd.DataFrame, battery_life_years, delivery_usd, cfg: ProgramConfig,
+                 battery_delivery_usd=None):
     """Present values (USD) per kit or block of options: lifecycle cost, of which salvage credit
     and transport. ``kit_rows`` are the options' kits (``capex_usd``, ``battery_capex_usd``,
     ``controller_capex_usd``, ``inverter_capex_usd``), ``delivery_usd`` one delivery to the
-    option's site (a battery replacement travels at ``transport.battery_replacement_share`` of it)."""
+    option's site (a battery replacement travels at ``transport.battery_replacement_share`` of it,
+    unless ``battery_delivery_usd`` says what one costs)."""
     e = cfg["economics"]
     p = cfg["program"]
     life = np.asarray(battery_life_years, dtype=float)
     delivery = np.asarray(delivery_usd, dtype=float)
-    battery_delivery = cfg["transport"]["battery_replacement_share"] * delivery
+    battery_delivery = (cfg["transport"]["battery_replacement_share"] * delivery if battery_delivery_usd is None
+                        else np.asarray(battery_delivery_usd, dtype=float))
     parts = (kit_rows.capex_usd.to_numpy(float), kit_rows.battery_capex_usd.to_numpy(float), life,
              kit_rows.controller_capex_usd.to_numpy(float), kit_rows.inverter_capex_usd.to_numpy(float))
     lives = dict(horizon_years=p["horizon_years"], rate=p["discount_rate"],
@@ -316,6 +334,43 @@ def option_costs(kit_rows: pd.DataFrame, battery_life_years, delivery_usd, cfg: 
     return lcc_one, salvage_one, transport_one
 
 
+def option_counts(table: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(PV blocks, battery blocks, inverters) of each option of a pairs or evaluations table;
+    a table with only ``blocks`` means plants of that many identical blocks (each kind)."""
+    n_pv = table["blocks"].to_numpy(float)
+    n_bat = table["battery_blocks"].to_numpy(float) if "battery_blocks" in table else n_pv
+    n_inv = table["inverters"].to_numpy(float) if "inverters" in table else n_pv
+    return n_pv, n_bat, n_inv
+
+
+def deliveries(table: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Deliveries from the depot per kit or plant, at year 0 and with each battery replacement:
+    one (and one battery) per household kit; one per PV block and per battery block of a plant
+    (its inverters travel with them; an assumption of ours), and one per battery block."""
+    n_pv, n_bat, _ = option_counts(table)
+    plant = table["scheme"].to_numpy() == "minigrid"
+    return np.where(plant, n_pv + n_bat, 1.0), np.where(plant, n_bat, 1.0)
+
+
+def _option_costs_delivered(qty, life, delivery_usd, table, cfg):
+    """:func:`option_costs` of options with their deliveries (``delivery_usd``: one delivery)."""
+    first, battery = deliveries(table)
+    one = np.asarray(delivery_usd, float)
+    return option_costs(qty, life, one * first, cfg,
+                        battery_delivery_usd=cfg["transport"]["battery_replacement_share"] * one * battery)
+
+
+def plant_design_label(kit_rows: pd.DataFrame, n_pv, n_bat, n_inv) -> np.ndarray:
+    """'3 x PV48-..., 2 x BT48-..., 2 x INV-...' for plants, '' for household kits."""
+    if "scheme" not in kit_rows or "pv_block_id" not in kit_rows:
+        return np.full(len(kit_rows), "", dtype=object)
+    plant = (kit_rows.scheme.to_numpy() == "minigrid")
+    return np.array([f"{int(a)} x {p}, {int(b)} x {q}, {int(c)} x {r}" if is_plant else ""
+                     for is_plant, a, p, b, q, c, r in zip(plant, n_pv, kit_rows.pv_block_id, n_bat,
+                                                           kit_rows.battery_block_id, n_inv, kit_rows.inverter_id)],
+                    dtype=object)
+
+
 def reprice_evaluations(ev: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
                         site_delivery: pd.DataFrame | None) -> pd.DataFrame:
     """The options of ``ev`` (from :func:`evaluate`) with their capex and lifecycle costs computed
@@ -327,16 +382,17 @@ def reprice_evaluations(ev: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig
         delivery = ev.site_id.map(site_delivery.set_index("site_id").delivery_usd).fillna(0.0).to_numpy(float)
     else:
         delivery = np.zeros(len(ev))
-    lcc_one, salvage_one, transport_one = option_costs(k, ev.battery_life_years.to_numpy(float), delivery, cfg)
-    mult = ev["count"].to_numpy(float) * ev.blocks.to_numpy(float)
-    out["capex_usd"] = k.capex_usd.to_numpy(float) * mult
+    q = plant_quantities(k, *option_counts(ev))
+    lcc_one, salvage_one, transport_one = _option_costs_delivered(q, ev.battery_life_years.to_numpy(float),
+                                                                  delivery, ev, cfg)
+    mult = ev["count"].to_numpy(float)
+    out["capex_usd"] = q.capex_usd.to_numpy(float) * mult
     out["lifecycle_cost_usd"] = lcc_one * mult
     out["transport_usd"] = transport_one * mult
     out["salvage_usd"] = salvage_one * mult
     p = cfg["program"]
     out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
-        lcc_one * ev.blocks.to_numpy(float), ev.served_kwh_year_per_kit.to_numpy(float), p["horizon_years"],
-        p["discount_rate"])
+        lcc_one, ev.served_kwh_year_per_kit.to_numpy(float), p["horizon_years"], p["discount_rate"])
     return out
 
 
@@ -360,11 +416,12 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     defer_frac = np.clip(_ratio(m["deferrable_demand_wh"] - m["deferrable_served_wh"], m["deferrable_demand_wh"]), 0.0, 1.0)
     k = kits.iloc[pairs.kit_idx.to_numpy()].reset_index(drop=True)
     u = units.iloc[pairs.unit_idx.to_numpy()].reset_index(drop=True)
-    blocks = pairs.blocks.to_numpy(dtype=float)
-    mult = u["count"].to_numpy(dtype=float) * blocks  # kits or blocks bought for the unit
+    counts = option_counts(pairs)
+    qty = plant_quantities(k, *counts)  # one kit, or one plant with its blocks
+    mult = u["count"].to_numpy(dtype=float)  # kits (plants) bought for the unit
     supply_share = np.stack([m[f"days_supply_tier{t}"] for t in range(1, 6)], axis=-1) / 365.0
     household = u.group.str.match(r"t[1-5]$").to_numpy()
-    achieved = tier_achieved(supply_share, cfg["program"]["tier_days_share"], k.max_load_w.to_numpy(),
+    achieved = tier_achieved(supply_share, cfg["program"]["tier_days_share"], qty.max_load_w.to_numpy(),
                              m["served_wh"] / 365.0, household)
     needed = required_tier(units, sites)[pairs.unit_idx.to_numpy()] if sites is not None else np.zeros(len(u), int)
     temp_batt = (battery_temperature_c(sites, cfg, weather_info)[pairs.site_idx.to_numpy()]
@@ -381,11 +438,17 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
         site_delivery_usd = transport.site_transport(sites, depots, cfg["transport"]).delivery_usd.to_numpy()
     delivery = (np.asarray(site_delivery_usd, dtype=float)[pairs.site_idx.to_numpy()]
                 if site_delivery_usd is not None else np.zeros(len(pairs)))
-    lcc_one, salvage_one, transport_one = option_costs(k, life, delivery, cfg)
-    served_kwh_year = m["served_wh"].mean(axis=1) / 1000.0 * blocks
+    lcc_one, salvage_one, transport_one = _option_costs_delivered(qty, life, delivery,
+                                                                  pairs.assign(scheme=u.scheme.to_numpy()), cfg)
+    served_kwh_year = m["served_wh"].mean(axis=1) / 1000.0  # the kernel ran whole plants
     out = pd.DataFrame({
         "unit_id": u.unit_id, "site_id": u.site_id, "scheme": u.scheme, "group": u.group,
-        "count": u["count"], "kit_id": k.kit_id, "blocks": pairs.blocks, "target": pairs.target,
+        "count": u["count"], "kit_id": k.kit_id, "blocks": counts[0].astype(np.int64),
+        "battery_blocks": counts[1].astype(np.int64), "inverters": counts[2].astype(np.int64),
+        "plant_design": plant_design_label(k, *counts),
+        **{col: (k[col].to_numpy() if col in k else np.full(len(k), "", object)) for col in BLOCK_KINDS},
+        "array_wp": qty.array_wp.to_numpy(), "battery_usable_wh": qty.battery_usable_wh.to_numpy(),
+        "target": pairs.target,
         "unmet_fraction_design": _design_quantile(unmet_frac, q),
         "critical_unmet_fraction_design": _design_quantile(crit_frac, q),
         "deferrable_unmet_fraction_design": _design_quantile(defer_frac, q),
@@ -401,7 +464,7 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
         "evening_served_fraction_design": _design_quantile(m["evening_served_wh"] / np.maximum(m["evening_demand_wh"], 1e-9), q, worse="low"),
         "pv_spilled_fraction_mean": (m["pv_spilled_wh"] / np.maximum(m["pv_bus_wh"], 1e-9)).mean(axis=1),
         "soc_min": m["soc_min"].min(axis=1), "soc_mean": m["soc_mean"].mean(axis=1),
-        "battery_cycles_per_year": m["battery_discharge_ah"].mean(axis=1) / (k.battery_ah.to_numpy() * k.usable_dod.to_numpy()),
+        "battery_cycles_per_year": m["battery_discharge_ah"].mean(axis=1) / (qty.battery_ah.to_numpy() * k.usable_dod.to_numpy()),
         "battery_life_years": life,
         "battery_replacement_year": np.where(life < p["horizon_years"], np.ceil(life), np.nan),
         "battery_temp_c": temp_batt,
@@ -412,7 +475,7 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
         "controller_loss_kwh_year": (m["controller_loss_wh"] + m["controller_self_wh"]).mean(axis=1) / 1000.0,
         "inverter_loss_kwh_year": m["inverter_loss_wh"].mean(axis=1) / 1000.0,
         "served_kwh_year_per_kit": served_kwh_year,
-        "capex_usd": k.capex_usd.to_numpy() * mult,
+        "capex_usd": qty.capex_usd.to_numpy() * mult,
         "lifecycle_cost_usd": lcc_one * mult,
         "transport_usd": transport_one * mult,
         "salvage_usd": salvage_one * mult,
@@ -429,7 +492,7 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     # what the option meets apart from the unit's energy target (for curves against the target)
     out["meets_other_targets"] = others_ok
     out["lcoe_usd_per_kwh"] = economics.levelised_cost_usd_per_kwh(
-        lcc_one * blocks, served_kwh_year, p["horizon_years"], p["discount_rate"])
+        lcc_one, served_kwh_year, p["horizon_years"], p["discount_rate"])
     out["pair"] = np.arange(len(out))
     return out
 
@@ -488,6 +551,35 @@ def explain_unserved(units, ev, screened, catalogues, options, result_cfg=None) 
                                        "nearest_kit_id", "nearest_unmet_fraction_design"])
 
 
+def solver_columns(scheme: str) -> list[str]:
+    """Option columns the catalogue program of a scheme reads."""
+    return ["unit_id", "kit_id", "cost_usd", *(BLOCK_KINDS if scheme == "minigrid" else ())]
+
+
+def solve_catalogue(scheme: str, options: pd.DataFrame, scheme_units: list[str], cfg: ProgramConfig, *,
+                    max_types: int, time_limit_s: float | None = None, lp_bound: bool = True) -> CatalogueResult:
+    """The catalogue program of a scheme: kit types for household kits
+    (:func:`fleet.catalogue.optimise_catalogue`); for minigrids at most ``max_types`` types of
+    each block kind, PV block, battery block and inverter
+    (:func:`fleet.catalogue.optimise_block_catalogue`), F per type of any kind."""
+    c = cfg["catalogue"]
+    kw = dict(max_types=int(max_types), cost_per_type_usd=c["cost_per_kit_type_usd"], solver=c["solver"],
+              time_limit_s=c["time_limit_s"] if time_limit_s is None else time_limit_s, lp_bound=lp_bound)
+    opts = options[solver_columns(scheme)]
+    if scheme == "minigrid":
+        return optimise_block_catalogue(opts, scheme_units, kinds=BLOCK_KINDS, **kw)
+    return optimise_catalogue(opts, scheme_units, **kw)
+
+
+def types_used(scheme: str, chosen: pd.DataFrame) -> int:
+    """Kit types (household kits) or block types of every kind (minigrids) a set of options uses."""
+    if not len(chosen):
+        return 0
+    if scheme == "minigrid":
+        return int(sum(chosen[col].nunique() for col in BLOCK_KINDS))
+    return int(chosen.kit_id.nunique())
+
+
 def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = None) -> pd.DataFrame:
     """The plan beside a custom best kit per unit, a single kit type per scheme and, when
     given, the rule-of-thumb sizing (:mod:`fleet.rule_of_thumb`), with simulated reliability."""
@@ -499,16 +591,15 @@ def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = No
         opts = options[options.scheme == scheme]
         plan = opts.merge(res.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
         custom = custom_best(opts) if not opts.empty else opts
-        one = optimise_catalogue(opts[["unit_id", "kit_id", "cost_usd"]], sch_units, max_types=1,
-                                 cost_per_type_usd=cfg["catalogue"]["cost_per_kit_type_usd"],
-                                 solver=cfg["catalogue"]["solver"], time_limit_s=cfg["catalogue"]["time_limit_s"])
+        one = solve_catalogue(scheme, opts, sch_units, cfg, max_types=1)
         single = opts.merge(one.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
+        one_name = "one type of each block for all" if scheme == "minigrid" else "one kit type for all"
         designs = [("plan (standard catalogue)", plan, len(res.chosen_kits)),
-                   ("custom best kit per unit", custom, custom.kit_id.nunique() if len(custom) else 0),
-                   ("one kit type for all", single, 1 if len(single) else 0)]
+                   ("custom best kit per unit", custom, types_used(scheme, custom)),
+                   (one_name, single, types_used(scheme, single))]
         if thumb is not None and len(thumb):
             rot = thumb[thumb.scheme == scheme].rename(columns={"lifecycle_cost_usd": "cost_usd"})
-            designs.append(("rule of thumb (design-month sun, days of autonomy)", rot, rot.kit_id.nunique()))
+            designs.append(("rule of thumb (design-month sun, days of autonomy)", rot, types_used(scheme, rot)))
         for name, sel, ntypes in designs:
             meets = (sel.unmet_fraction_design <= sel.target + 1e-12) & sel.get("feasible", True)
             rows.append({
@@ -559,7 +650,8 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
         # options are built once per distinct feasibility rule, only for this scheme and with the
         # columns the solver needs (copies of the whole option table per point grew with the program)
         mine = ev[ev.scheme == scheme]
-        base = catalogue_options(mine)[["unit_id", "kit_id", "cost_usd"]]
+        cols = solver_columns(scheme)
+        base = catalogue_options(mine)[cols]
         k_program = int(c[f"max_kit_types_{scheme}"])
         points = [("kit types", float(k), None, int(k)) for k in kit_types]
         points += [("energy target (unmet fraction)", float(t), float(t), k_program) for t in targets]
@@ -570,12 +662,11 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
             if target is None:
                 return base
             ok = mine.meets_other_targets & ((mine.unmet_fraction_design <= target + 1e-12) if energy_mode else True)
-            return catalogue_options(mine.assign(feasible=ok))[["unit_id", "kit_id", "cost_usd"]]
+            return catalogue_options(mine.assign(feasible=ok))[cols]
 
         def solve(target, k):
             o = options_at(target)
-            res = optimise_catalogue(o, scheme_units, max_types=k, cost_per_type_usd=c["cost_per_kit_type_usd"],
-                                     solver=c["solver"], time_limit_s=limit, lp_bound=False)
+            res = solve_catalogue(scheme, o, scheme_units, cfg, max_types=k, time_limit_s=limit, lp_bound=False)
             return res, _chosen_cost(o, res)
 
         # the run's own catalogue is a point when the options are the same: always on the kit-type
@@ -718,10 +809,8 @@ def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, 
     c = cfg["catalogue"]
     for scheme in ("shs", "minigrid"):
         scheme_units = units[units.scheme == scheme].unit_id.tolist()
-        catalogues[scheme] = optimise_catalogue(
-            options[options.scheme == scheme][["unit_id", "kit_id", "cost_usd"]], scheme_units,
-            max_types=c[f"max_kit_types_{scheme}"], cost_per_type_usd=c["cost_per_kit_type_usd"],
-            solver=c["solver"], time_limit_s=c["time_limit_s"])
+        catalogues[scheme] = solve_catalogue(scheme, options[options.scheme == scheme], scheme_units, cfg,
+                                             max_types=c[f"max_kit_types_{scheme}"])
     unserved = explain_unserved(units, ev, screened, catalogues, options, cfg)
     comparisons = compare(ev, options, units, catalogues, cfg,
                           thumb=rule_of_thumb.choose(ev, units, kits, sun_hours) if len(ev) else None)
@@ -776,7 +865,8 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     tracker.stage("kits")
     s = cfg["system"]
     cond = _design_conditions_for(sites, cfg, weather_sources)
-    kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond)
+    kits, bom, rejected = candidate_kits(library, voltages_v=s["voltages_v"], max_parallel_strings=s["max_parallel_battery_strings"], cond=cond,
+                                    max_plant_lifepo4_blocks=s.get("max_plant_lifepo4_blocks"))
     warnings += [f"component library: {n}" for n in library.notes]
     tables = tables_for_kits(kits, library)
     params = kernel_parameters(kits, tables, reconnect_hysteresis_soc=s["reconnect_hysteresis_soc"],
@@ -873,10 +963,12 @@ def simulate_chunked(weather: Weather, demand, unit_params, params, tables, pair
         keys, src = np.unique(np.column_stack([site[g], table[g]]), axis=0, return_inverse=True)
         pv = array_power_per_string(weather.poa_wm2, weather.cell_temp_c, tables, keys[:, 0], keys[:, 1])
         sl = pairs.iloc[g]
+        # each option's own parameters: a plant is its template with its block counts
+        own = plant_parameters(params[sl.kit_idx.to_numpy(np.int64)], *option_counts(sl))
         out[g] = dispatch.simulate_pairs(
-            pv, demand.general_w, demand.critical_w, unit_params, params, vt,
-            np.asarray(src, np.int64).ravel(), sl.unit_idx.to_numpy(np.int64), sl.kit_idx.to_numpy(np.int64),
-            sl.blocks.to_numpy(np.float64), np.asarray(battery_temp_c, float)[site[g]])
+            pv, demand.general_w, demand.critical_w, unit_params, own, vt,
+            np.asarray(src, np.int64).ravel(), sl.unit_idx.to_numpy(np.int64), np.arange(len(g), dtype=np.int64),
+            np.ones(len(g)), np.asarray(battery_temp_c, float)[site[g]])
     return out
 
 
@@ -921,16 +1013,18 @@ def representative_traces(result: PlanResult, params: np.ndarray, tables) -> dic
         t_batt = float(battery_temperature_c(result.sites, result.config, result.weather.info)[s_idx])
         # the design year is the year whose unmet fraction is the design quantile
         unmet = []
+        own = plant_parameters(params[[k_idx]], *option_counts(ev.loc[[row.pair]]))[0]
         for y in range(years):
             up = unit_params[u_idx]
-            tr = dispatch.simulate_trace(pv[y], demand.general_w[u_idx], params[k_idx],
-                                         battery_temp_c=t_batt, scale=float(pair.blocks),
+            tr = dispatch.simulate_trace(pv[y], demand.general_w[u_idx], own,
+                                         battery_temp_c=t_batt,
                                          critical_w=demand.critical_w[u_idx], deferrable_wh_day=up[0],
                                          pump_w=up[1], shed_separation_soc=up[2])
             unmet.append((tr["load_w"].sum() - tr["served_w"].sum(), y, tr))
         unmet.sort(key=lambda t: t[0])
         q = result.config["program"]["target_confidence"]
         _, y, tr = unmet[min(int(np.ceil(q * years)) - 1, years - 1)]
-        tr.update(unit_id=row.unit_id, kit_id=row.kit_id, weather_year=y, blocks=int(pair.blocks))
+        tr.update(unit_id=row.unit_id, kit_id=row.kit_id, weather_year=y, blocks=int(pair.blocks),
+                  plant_design=str(pair.get("plant_design", "")))
         out[scheme] = tr
     return out

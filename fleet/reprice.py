@@ -109,7 +109,7 @@ def read_price_edits(path, bom: pd.DataFrame, *, max_change: float = DEFAULT_MAX
                                 f"cell {spares_cell}: {spares!r} is not a number between 0 and 1"))
 
     known = bom.drop_duplicates("component_id").set_index("component_id")
-    kit_ids = set(bom.kit_id)
+    kit_ids = set(bom.item_id) if "item_id" in bom else set(bom.kit_id)
     seen: dict[str, tuple[float, str]] = {}
     for r in range(header_row, len(rows)):
         row = rows[r]
@@ -185,6 +185,11 @@ def apply_prices(kits: pd.DataFrame, bom: pd.DataFrame, prices: dict[str, float]
                          ("inverter", "inverter_capex_usd")):
         part = ext[bom.component_kind == kind].groupby(bom.kit_id[bom.component_kind == kind]).sum()
         kits[column] = kits.kit_id.map(part).fillna(0.0).astype(float)
+    if "block_kind" in bom:
+        from .kits import PLANT_PARTS
+        for part in PLANT_PARTS:
+            sel = bom.block_kind.isin([part, "kit"] if part == "pv" else [part])
+            kits[f"{part}_part_capex_usd"] = kits.kit_id.map(ext[sel].groupby(bom.kit_id[sel]).sum()).fillna(0.0).astype(float)
     return kits, bom
 
 
@@ -256,7 +261,9 @@ def reprice_plan(result, edits: PriceEdits):
 def _assigned(result) -> pd.DataFrame:
     from .plan import assigned_options
     a = assigned_options(result)
-    return a[["unit_id", "scheme", "kit_id", "blocks", "capex_usd", "cost_usd"]]
+    cols = ["unit_id", "scheme", "kit_id", "blocks", "battery_blocks", "inverters", "capex_usd", "cost_usd",
+            "pv_block_id", "battery_block_id", "inverter_id"]
+    return a[[c for c in cols if c in a]]
 
 
 def changes_table(old, new, edits: PriceEdits) -> pd.DataFrame:
@@ -283,9 +290,16 @@ def changes_table(old, new, edits: PriceEdits) -> pd.DataFrame:
         before = set(old.catalogues[scheme].chosen_kits)
         after = set(new.catalogues[scheme].chosen_kits)
         mean_rel = float(rel[ev_new.scheme == scheme].mean()) if (ev_new.scheme == scheme).any() else 0.0
+        def using(a, k):  # units whose kit is k, or whose plant has blocks of type k
+            hit = a.kit_id == k
+            for col in ("pv_block_id", "battery_block_id", "inverter_id"):
+                if scheme == "minigrid" and col in a:
+                    hit |= a[col] == k
+            return int(hit.sum())
+
         for kit, verb, units_b, units_a in (
-                [(k, "kit type dropped", int((a_old.kit_id == k).sum()), 0) for k in sorted(before - after)]
-                + [(k, "kit type added", 0, int((a_new.kit_id == k).sum())) for k in sorted(after - before)]):
+                [(k, "kit type dropped", using(a_old, k), 0) for k in sorted(before - after)]
+                + [(k, "kit type added", 0, using(a_new, k)) for k in sorted(after - before)]):
             d = float(rel_by_kit.get(kit, np.nan))
             parts = parts_of.get(kit, [])
             why = (f"its options' lifecycle cost changed {d:+.1%} on average, against {mean_rel:+.1%} for all "
@@ -295,7 +309,9 @@ def changes_table(old, new, edits: PriceEdits) -> pd.DataFrame:
                          "change": "units assigned", "why": why})
         m = a_old[a_old.scheme == scheme].merge(a_new[a_new.scheme == scheme], on="unit_id", how="outer",
                                                 suffixes=("_old", "_new"))
-        moved = m[(m.kit_id_old != m.kit_id_new) | (m.blocks_old != m.blocks_new)]
+        moved = m[(m.kit_id_old != m.kit_id_new) | (m.blocks_old != m.blocks_new)
+                  | (m.get("battery_blocks_old", 0) != m.get("battery_blocks_new", 0))
+                  | (m.get("inverters_old", 0) != m.get("inverters_new", 0))]
         if len(m):
             rows.append({"what": f"{scheme}: units given another kit or block count", "item": f"{len(m)} units",
                          "before": "", "after": int(len(moved)), "change": f"{len(moved) / len(m):.0%} of units",

@@ -68,10 +68,13 @@ def choose(evaluations: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame,
     ``kits`` the candidates, ``sun_hours_by_site`` the design-month sun hours by site id.
     Adds ``need_wp`` and ``need_usable_wh`` to the chosen rows.
     """
-    k = kits.set_index("kit_id")
-    ev = evaluations.assign(
-        wp=evaluations.kit_id.map(k.array_wp) * evaluations.blocks,
-        usable=evaluations.kit_id.map(k.battery_usable_wh) * evaluations.blocks)
+    if {"array_wp", "battery_usable_wh"} <= set(evaluations.columns):  # per kit or whole plant
+        ev = evaluations.assign(wp=evaluations.array_wp, usable=evaluations.battery_usable_wh)
+    else:
+        k = kits.set_index("kit_id")
+        ev = evaluations.assign(
+            wp=evaluations.kit_id.map(k.array_wp) * evaluations.blocks,
+            usable=evaluations.kit_id.map(k.battery_usable_wh) * evaluations.blocks)
     u = units.set_index("unit_id")
     daily = (u.daily_energy_wh + u.deferrable_wh_day).reindex(ev.unit_id).to_numpy(float)
     scheme = ev.scheme.to_numpy()

@@ -7,7 +7,7 @@ from scipy import sparse
 from scipy.optimize import linprog
 
 from fleet.catalogue import (TIME_LIMIT_STATUS, custom_best, dominated_kits, merge_identical_units,
-                             optimise_catalogue, prefix_chains)
+                             optimise_block_catalogue, optimise_catalogue, prefix_chains)
 
 
 def _instance(seed, n_units=9, n_kits=6, density=0.6):
@@ -268,3 +268,182 @@ def test_custom_best_takes_the_cheapest_option_per_unit():
     opts = _instance(3)
     best = custom_best(opts)
     assert (best.set_index("unit_id").cost_usd == opts.groupby("unit_id").cost_usd.min()).all()
+
+
+# --------------------------------------------------------------------------- block catalogue (modular plants)
+
+KINDS = ("pv_block_id", "battery_block_id", "inverter_id")
+
+
+def _block_instance(seed, n_units=8, n_kinds=2, n_types=(3, 3), n_designs=6, infeasible=0.3, n_copies=2,
+                    n_without=1):
+    """Random plant designs per unit (one block type per kind, random lifecycle cost); a share of designs
+    is dropped as infeasible, some units are offset-and-scaled copies of others (so they merge), and
+    ``n_without`` units have no feasible design at all."""
+    rng = np.random.default_rng(seed)
+    kinds = KINDS[:n_kinds]
+    rows = []
+    for u in range(n_units):
+        for d in range(n_designs):
+            if rng.random() < infeasible:
+                continue
+            types = [f"{kind.split('_')[0]}{rng.integers(n)}" for kind, n in zip(kinds, n_types)]
+            rows.append((f"u{u:02d}", f"d{u}-{d}", float(rng.integers(100, 1000)), *types))
+    opts = pd.DataFrame(rows, columns=["unit_id", "kit_id", "cost_usd", *kinds])
+    copies = []
+    for c in range(n_copies):
+        src = opts[opts.unit_id == f"u{c:02d}"]
+        copies.append(src.assign(unit_id=f"copy{c}", cost_usd=40.0 + 3.0 * src.cost_usd))
+    opts = pd.concat([opts, *copies], ignore_index=True)
+    units = sorted(opts.unit_id.unique()) + [f"none{i}" for i in range(n_without)]
+    return opts, list(kinds), units
+
+
+def _big_m(opts, kinds, fixed):
+    """The penalty documented in optimise_block_catalogue: 10 x the dearest option kept when only each
+    unit's cheapest option per combination of block types counts, + 10 F + 1 USD."""
+    return 10.0 * opts.groupby(["unit_id", *kinds]).cost_usd.min().max() + 10.0 * fixed + 1.0
+
+
+def brute_force_blocks(opts, kinds, max_types, fixed, allowed=None):
+    """Every choice of at most K types of each kind; each unit takes its cheapest option built only from
+    chosen types, or the penalty M when it has options but none of them is. Returns the least total."""
+    for kind, types in (allowed or {}).items():
+        opts = opts[opts[kind].isin(types)]
+    big_m = _big_m(opts, kinds, fixed)
+    u, units = pd.factorize(opts.unit_id)
+    cost = opts.cost_usd.to_numpy()
+    codes, per_kind = [], []
+    for kind in kinds:
+        code, types = pd.factorize(opts[kind])
+        codes.append(code)
+        per_kind.append([list(c) for r in range(max_types + 1) for c in itertools.combinations(range(len(types)), r)])
+    best = np.inf
+    for choice in itertools.product(*per_kind):
+        usable = np.ones(len(opts), dtype=bool)
+        for code, chosen in zip(codes, choice):
+            usable &= np.isin(code, chosen)
+        unit_best = np.full(len(units), np.inf)
+        np.minimum.at(unit_best, u[usable], cost[usable])
+        served = np.isfinite(unit_best)
+        total = unit_best[served].sum() + big_m * (~served).sum() + fixed * sum(len(c) for c in choice)
+        best = min(best, total)
+    return best
+
+
+def check_block_plan(res, opts, kinds, units, max_types, fixed):
+    """The plan is one the option table allows, and its objective is its own total cost."""
+    assert sorted(res.chosen_blocks) == sorted(kinds)
+    assert all(len(v) <= max_types for v in res.chosen_blocks.values())
+    assert res.chosen_kits == sorted(t for v in res.chosen_blocks.values() for t in v)
+    assert list(res.assignment.index) == list(units)
+    served = res.assignment[res.assignment != ""]
+    priced = opts.merge(served.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
+    assert len(priced) == len(served)  # every assignment is one of that unit's options
+    for kind in kinds:
+        assert set(priced[kind]) <= set(res.chosen_blocks[kind])
+    with_options = set(opts.unit_id)
+    assert set(res.unserved_units) == set(units) - set(served.index)
+    penalised = len([u for u in res.unserved_units if u in with_options])
+    expected = priced.cost_usd.sum() + fixed * len(res.chosen_kits) + _big_m(opts, kinds, fixed) * penalised
+    assert res.objective_usd == pytest.approx(expected, rel=1e-12)
+
+
+@pytest.mark.parametrize("max_types", [1, 2])
+@pytest.mark.parametrize("seed", range(4))
+def test_block_catalogue_equals_brute_force_on_small_instances(seed, max_types):
+    # source: exhaustive enumeration of the definition (every choice of <= K types of each kind)
+    n_kinds = 2 + seed % 2
+    n_types = [(2, 4), (3, 2, 4), (4, 3), (2, 3, 3)][seed]
+    opts, kinds, units = _block_instance(seed, n_units=9, n_kinds=n_kinds, n_types=n_types)
+    res = optimise_block_catalogue(opts, units, kinds=kinds, max_types=max_types, cost_per_type_usd=150.0)
+    assert res.status == "Optimal"
+    assert res.objective_usd == pytest.approx(brute_force_blocks(opts, kinds, max_types, 150.0), rel=1e-6)
+    check_block_plan(res, opts, kinds, units, max_types, 150.0)
+    assert "none0" in res.unserved_units
+    assert res.distinct_cases < res.model_stats["units_in_program"]  # the copies merged
+    assert res.model_stats["combinations"] <= res.model_stats["options"]
+    assert 0 <= res.gap and res.lower_bound_usd <= res.objective_usd * (1 + 1e-9)
+
+
+@pytest.mark.parametrize("seed", range(2))
+def test_block_catalogue_highs_agrees_with_cbc(seed):
+    # source: HiGHS (highspy) as an independent solver, same objective and LP bound as CBC
+    opts, kinds, units = _block_instance(seed + 30, n_units=20, n_kinds=3, n_types=(4, 3, 3), n_designs=16)
+    a = optimise_block_catalogue(opts, units, kinds=kinds, max_types=2, cost_per_type_usd=80.0, solver="cbc")
+    b = optimise_block_catalogue(opts, units, kinds=kinds, max_types=2, cost_per_type_usd=80.0, solver="highs")
+    assert a.status == b.status == "Optimal"
+    assert a.objective_usd == pytest.approx(b.objective_usd, rel=1e-9)
+    assert a.lower_bound_usd == pytest.approx(b.lower_bound_usd, rel=1e-7)
+    check_block_plan(b, opts, kinds, units, 2, 80.0)
+
+
+@pytest.mark.parametrize("max_types", [1, 2])
+@pytest.mark.parametrize("seed", range(3))
+def test_one_kind_gives_the_kit_catalogue(seed, max_types):
+    # source: optimise_catalogue (checked against brute force above) on the same options, with the
+    # kit id being the block type and each unit's cheapest option per type
+    opts, kinds, units = _block_instance(seed + 50, n_units=12, n_kinds=1, n_types=(5,), n_designs=5)
+    res = optimise_block_catalogue(opts, units, kinds=kinds, max_types=max_types, cost_per_type_usd=120.0)
+    kit_opts = (opts.groupby(["unit_id", kinds[0]], as_index=False).cost_usd.min()
+                .rename(columns={kinds[0]: "kit_id"}))
+    ref = optimise_catalogue(kit_opts, units, max_types=max_types, cost_per_type_usd=120.0)
+    assert res.objective_usd == pytest.approx(ref.objective_usd, rel=1e-9)
+    assert len(res.unserved_units) == len(ref.unserved_units)
+    check_block_plan(res, opts, kinds, units, max_types, 120.0)
+
+
+def test_units_no_chosen_block_types_serve_are_reported():
+    # source: hand calculation from the definition; with one type per kind only one of a and b can be
+    # served (10 USD), the other pays M = 10 x 10 + 10 x 0 + 1 = 101 USD, c has no option at all
+    opts = pd.DataFrame([("a", "a1", 10.0, "pv1", "bat1"), ("b", "b1", 10.0, "pv2", "bat2")],
+                        columns=["unit_id", "kit_id", "cost_usd", "pv_block_id", "battery_block_id"])
+    kinds = ["pv_block_id", "battery_block_id"]
+    res = optimise_block_catalogue(opts, ["a", "b", "c"], kinds=kinds, max_types=1, cost_per_type_usd=0.0)
+    assert res.objective_usd == pytest.approx(111.0, rel=1e-12)
+    assert len(res.unserved_units) == 2 and "c" in res.unserved_units
+    served = "a" if res.assignment["a"] else "b"
+    assert res.assignment[served] == f"{served}1"
+    assert res.chosen_blocks == {"pv_block_id": [f"pv{1 if served == 'a' else 2}"],
+                                 "battery_block_id": [f"bat{1 if served == 'a' else 2}"]}
+    check_block_plan(res, opts, kinds, ["a", "b", "c"], 1, 0.0)
+
+
+@pytest.mark.parametrize("seed", range(2))
+def test_allowed_block_types_are_respected(seed):
+    # source: exhaustive enumeration of the definition restricted to the allowed types
+    opts, kinds, units = _block_instance(seed + 70, n_units=10, n_kinds=3, n_types=(3, 3, 2))
+    allowed = {kinds[0]: ["pv0", "pv1"], kinds[2]: ["inverter0"]}
+    res = optimise_block_catalogue(opts, units, kinds=kinds, max_types=2, cost_per_type_usd=60.0,
+                                   allowed_types=allowed)
+    for kind, types in allowed.items():
+        assert set(res.chosen_blocks[kind]) <= set(types)
+    assert res.objective_usd == pytest.approx(brute_force_blocks(opts, kinds, 2, 60.0, allowed), rel=1e-6)
+    restricted = opts[opts[kinds[0]].isin(allowed[kinds[0]]) & opts[kinds[2]].isin(allowed[kinds[2]])]
+    check_block_plan(res, restricted, kinds, units, 2, 60.0)
+
+
+def test_block_catalogue_time_limit_returns_a_plan():
+    # source: exhaustive enumeration of the definition gives the optimum the plan cannot beat
+    opts, kinds, units = _block_instance(9, n_units=40, n_kinds=3, n_types=(5, 4, 4), n_designs=8)
+    best = brute_force_blocks(opts, kinds, 2, 30.0)
+    for solver in ("cbc", "highs"):
+        res = optimise_block_catalogue(opts, units, kinds=kinds, max_types=2, cost_per_type_usd=30.0,
+                                       solver=solver, time_limit_s=0.0)
+        assert res.status in ("Optimal", TIME_LIMIT_STATUS)
+        check_block_plan(res, opts, kinds, units, 2, 30.0)
+        assert res.objective_usd >= best * (1 - 1e-12)
+        if res.status == TIME_LIMIT_STATUS and np.isfinite(res.lower_bound_usd):
+            assert res.gap == pytest.approx((res.objective_usd - res.lower_bound_usd) / res.objective_usd)
+
+
+def test_block_catalogue_rejects_bad_options():
+    opts, kinds, units = _block_instance(1)
+    with pytest.raises(ValueError, match="missing column"):
+        optimise_block_catalogue(opts.drop(columns=kinds[1]), units, kinds=kinds, max_types=1, cost_per_type_usd=0.0)
+    with pytest.raises(ValueError, match="unique within a unit"):
+        optimise_block_catalogue(pd.concat([opts, opts.head(1)]), units, kinds=kinds, max_types=1,
+                                 cost_per_type_usd=0.0)
+    with pytest.raises(ValueError, match="not among kinds"):
+        optimise_block_catalogue(opts, units, kinds=kinds, max_types=1, cost_per_type_usd=0.0,
+                                 allowed_types={"wind_block_id": ["w1"]})

@@ -295,3 +295,68 @@ def test_surge_ok_compares_the_inverter_surge_rating(kits):
     blk = k[k.scheme == "minigrid"]
     need = 1.5 * blk.inverter_surge_w.min()
     assert not K.surge_ok(blk, need).all() and K.surge_ok(blk, need, blocks=2).all()
+
+
+# --------------------------------------------------------------------------------------------
+# modular minigrid plants: PV blocks, battery blocks and inverters
+
+
+def test_plant_templates_combine_block_types_and_split_their_capex(kits):
+    k, bom, rejected = kits
+    mg = k[k.scheme == "minigrid"]
+    assert len(mg) and (mg.system_voltage_v == 48).all() and (mg.topology == "ac").all()
+    # one template per (PV block, battery block, inverter): the catalogue standardises each kind
+    assert not mg.duplicated(["pv_block_id", "battery_block_id", "inverter_id"]).any()
+    assert mg.pv_block_id.nunique() > 1 and mg.battery_block_id.nunique() > 1 and mg.inverter_id.nunique() > 1
+    # a battery block is one string at the bus voltage (# common practice: strings, not single cells,
+    # are paralleled), at least PLANT_MIN_BATTERY_BLOCK_WH
+    assert (mg.battery_strings == 1).all() and (mg.battery_nominal_wh >= K.PLANT_MIN_BATTERY_BLOCK_WH).all()
+    assert (rejected.rule == "battery_block_size").any()
+    parts = mg[[f"{p}_part_capex_usd" for p in K.PLANT_PARTS]].sum(axis=1)
+    np.testing.assert_allclose(parts, mg.capex_usd, rtol=1e-12)  # the parts are the whole bill of materials
+    lines = bom[bom.kit_id.isin(mg.kit_id)]
+    assert set(lines.block_kind) <= {"pv", "battery", "inverter", "plant"}
+    assert set(lines[lines.component_kind == "battery"].block_kind) == {"battery"}
+    assert set(lines[lines.component_kind == "inverter"].block_kind) == {"inverter"}
+    assert set(lines[lines.component_kind.isin(["pv_module", "charge_controller"])].block_kind) == {"pv"}
+    # procurement buys blocks: each line's item is the block of its kind
+    pv = lines[lines.block_kind == "pv"]
+    assert (pv.item_id == pv.kit_id.map(mg.set_index("kit_id").pv_block_id)).all()
+    # lead-acid plants keep the program's parallel-string limit; LiFePO4 plants the plant limit
+    lead = mg.chemistry == "lead_acid"
+    assert (mg.max_battery_blocks[lead] == 3).all() and (mg.max_battery_blocks[~lead] == K.PLANT_LFP_MAX_PARALLEL).all()
+
+
+def test_plant_quantities_are_the_blocks_times_their_counts(kits):
+    k = kits[0]
+    mg = k[k.scheme == "minigrid"].head(3).reset_index(drop=True)
+    n_pv, n_bat, n_inv = np.array([1, 4, 7]), np.array([1, 2, 9]), np.array([1, 3, 2])
+    q = K.plant_quantities(mg, n_pv, n_bat, n_inv)
+    expect = (mg.pv_part_capex_usd * n_pv + mg.battery_part_capex_usd * n_bat + mg.inverter_part_capex_usd * n_inv
+              + mg.plant_part_capex_usd)
+    np.testing.assert_allclose(q.capex_usd, expect)
+    np.testing.assert_allclose(q.capex_usd.iloc[0], mg.capex_usd.iloc[0])  # one of each is the template
+    np.testing.assert_allclose(q.array_wp, mg.array_wp * n_pv)
+    np.testing.assert_allclose(q.battery_usable_wh, mg.battery_usable_wh * n_bat)
+    np.testing.assert_allclose(q.max_load_w, mg.max_load_w * n_inv)
+    np.testing.assert_allclose(q.battery_capex_usd, mg.battery_capex_usd * n_bat)
+    shs = k[k.scheme == "shs"].head(2).reset_index(drop=True)
+    np.testing.assert_allclose(K.plant_quantities(shs, [1, 1], [1, 1], [1, 1]).capex_usd, shs.capex_usd)
+
+
+def test_inverters_sharing_a_load_lose_q_p_squared_over_n():
+    # source: Jantsch, Schmidt & Schmid (1992) inverter loss model P_loss = P0 + q P^2 per inverter;
+    # n equal inverters sharing P each carry P/n: n (P0 + q (P/n)^2) = n P0 + q P^2 / n
+    from fleet.dispatch import K as P, KIT_PARAMS
+    row = np.zeros((1, len(KIT_PARAMS)))
+    row[0, P["inverter_no_load_w"]], row[0, P["inverter_quadratic_per_w"]] = 25.0, 4e-6
+    row[0, P["max_load_w"]], row[0, P["ac"]], row[0, P["disconnect_ref_c"]] = 5000.0, 1.0, 0.2
+    row[0, P["battery_ah"]], row[0, P["array_multiplier"]] = 280.0, 12.0
+    plant = K.plant_parameters(row, [2], [4], [3])[0]
+    p_out = 9000.0
+    by_hand = 3 * (25.0 + 4e-6 * (p_out / 3) ** 2)
+    assert plant[P["inverter_no_load_w"]] + plant[P["inverter_quadratic_per_w"]] * p_out ** 2 == pytest.approx(by_hand)
+    assert plant[P["max_load_w"]] == 15000.0 and plant[P["battery_ah"]] == 4 * 280.0
+    assert plant[P["array_multiplier"]] == 24.0
+    # the cut-off's reference C-rate is the plant's inverter power over its bank
+    assert plant[P["disconnect_ref_c"]] == pytest.approx(0.2 * 3 / 4)

@@ -173,9 +173,12 @@ def test_the_lifecycle_cost_carries_transport_and_salvage(kits, config, tmp_path
     one = np.where(sites.scheme == "shs", 1.4 * km * 0.03, 1.4 * km * 0.6) + 4.0
     site = pairs.site_idx.to_numpy()
     p = cfg["program"]
-    expected = (one[site] + economics.replacement_present_value(0.5 * one[site], ev.battery_life_years.to_numpy(),
-                                                                p["horizon_years"], p["discount_rate"]))
-    np.testing.assert_allclose(ev.transport_usd, expected * ev["count"] * ev.blocks, rtol=TOLERANCE)
+    # a plant of 3 PV blocks, 3 battery blocks and 3 inverters: 6 deliveries, 3 battery shares
+    first = np.where(ev.scheme == "minigrid", ev.blocks + ev.battery_blocks, 1)
+    battery = np.where(ev.scheme == "minigrid", ev.battery_blocks, 1)
+    expected = (one[site] * first + economics.replacement_present_value(
+        0.5 * one[site] * battery, ev.battery_life_years.to_numpy(), p["horizon_years"], p["discount_rate"]))
+    np.testing.assert_allclose(ev.transport_usd, expected * ev["count"], rtol=TOLERANCE)
     # the salvage credit is what the cost without salvage exceeds it by
     e = cfg["economics"]
     k = kit_table.iloc[pairs.kit_idx.to_numpy()]
