@@ -541,7 +541,8 @@ def explain_unserved(units, ev, screened, catalogues, options, result_cfg=None) 
             continue
         if not mine.empty:
             near = mine.sort_values(["unmet_fraction_design", "critical_unmet_fraction_design"]).iloc[0]
-            reason = f"no candidate meets the target: nearest is {near.kit_id} ({shortfall(near, result_cfg)})"
+            name = str(near.get("plant_design", "") or "") or near.kit_id  # a plant: its blocks and counts
+            reason = f"no candidate meets the target: nearest is {name} ({shortfall(near, result_cfg)})"
             rows.append((u.unit_id, u.site_id, u.scheme, u.group, u.count, reason, near.kit_id, near.unmet_fraction_design))
         else:
             s = screened[screened.unit_id == u.unit_id]
