@@ -42,6 +42,11 @@ DEFAULT_CAUTIONS: tuple[str, ...] = (
     "(lead-acid batteries give off hydrogen while charging), keep sparks and "
     "flames away, wear eye protection, use insulated tools, and follow the "
     "manufacturer's instructions for handling, transport and disposal.",
+    "Minigrid plants parallel several battery strings, charge controllers and "
+    "inverters on one DC bus: give every battery string its own fuse or breaker "
+    "rated for the fault current the other strings can feed into it, and size "
+    "the bus bars and main disconnect for the plant's total current; the bill "
+    "of materials does not price these plant-level parts.",
     "Prices, weather and demand are estimates; check quantities and prices "
     "with suppliers before committing to a purchase.",
 )
