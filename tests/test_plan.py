@@ -119,3 +119,63 @@ def test_deferrable_shortfall_makes_an_option_infeasible(config):
     out = ev(_metrics(1, 2, deferrable_demand_wh=1000, deferrable_served_wh=[[700, 700]]))
     assert out.deferrable_unmet_fraction_design.iloc[0] == pytest.approx(0.3)  # above the 20 % allowed
     assert not out.feasible.iloc[0]
+
+
+def test_a_plant_of_n_of_each_block_is_n_blocks_sharing_the_load(kits, params):
+    # common practice: identical blocks in parallel with an equal share of the load behave as one
+    # block with 1/n of it (same state of charge, n times every flow); the kernel's ``scale`` runs
+    # exactly that, so a plant of n of each block from plant_parameters must give n x its energies
+    from fleet import dispatch
+    from fleet.battery import voltage_tables
+    from fleet.kits import plant_parameters
+    k = kits[0]
+    t = int(np.flatnonzero((k.scheme == "minigrid").to_numpy())[0])
+    hours = np.arange(8760)
+    shape = np.clip(np.sin((hours % 24 - 6) / 12 * np.pi), 0, None)
+    rng = np.random.default_rng(3)
+    day = np.repeat(rng.uniform(0.3, 1.0, 365), 24)
+    pv = (shape * day * 320.0).astype(np.float32)[None, None, :]  # W per string, one source, one year
+    load = (np.where((hours % 24 >= 18) & (hours % 24 < 23), 9000.0, 2500.0)).astype(np.float32)[None, :]
+    crit = np.zeros_like(load)
+    unit_p = np.zeros((1, 3))
+    n = 3
+    plant = plant_parameters(params[[t]], [n], [n], [n])
+    run = lambda p, scale: dispatch.simulate_pairs(
+        pv, load, crit, unit_p, p, voltage_tables(), np.zeros(1, np.int64), np.zeros(1, np.int64),
+        np.zeros(1, np.int64), np.array([scale], float), np.array([25.0]))[0, 0]
+    shared = run(params[[t]], float(n))
+    whole = run(plant, 1.0)
+    m = {name: j for j, name in enumerate(dispatch.METRICS)}
+    for name in ("served_wh", "unmet_wh", "pv_bus_wh", "inverter_loss_wh", "battery_discharge_ah"):
+        assert whole[m[name]] == pytest.approx(n * shared[m[name]], rel=1e-6), name
+    assert whole[m["soc_min"]] == pytest.approx(shared[m["soc_min"]], abs=1e-9)
+    assert whole[m["unmet_wh"]] > 0  # the case exercises the disconnect, not only full service
+
+
+def test_plant_options_count_inverters_for_peak_and_motor_start_and_keep_the_parallel_limit(
+        tiny_sites, library, config):
+    from fleet.kits import unit_surge_need_w
+    r = run_plan(tiny_sites, library, config.with_overrides(program={"weather_years": 1}))
+    ev = r.evaluations[r.evaluations.scheme == "minigrid"]
+    assert len(ev) and ev.battery_blocks.nunique() > 1 and ev.blocks.nunique() > 1
+    k = r.kits.set_index("kit_id").loc[ev.kit_id]
+    u = r.units.set_index("unit_id").loc[ev.unit_id]
+    # common practice for paralleled inverters (the rule build_pairs states): the fewest inverters
+    # whose summed rating carries the design peak and whose summed surge rating starts the largest
+    # motor
+    surge = unit_surge_need_w(r.units, r.units, tiny_sites)
+    need = pd.Series(surge, index=r.units.unit_id).loc[ev.unit_id].to_numpy()
+    inv = ev.inverters.to_numpy()
+    assert (inv * k.max_load_w.to_numpy() >= u.peak_power_w.to_numpy() - 1e-6).all()
+    assert (inv * k.inverter_surge_w.to_numpy() >= need - 1e-6).all()
+    fewer = np.maximum(inv - 1, 0)
+    assert ((fewer * k.max_load_w.to_numpy() < u.peak_power_w.to_numpy())
+            | (fewer * k.inverter_surge_w.to_numpy() < need)).all()
+    assert (ev.battery_blocks.to_numpy() <= k.max_battery_blocks.to_numpy()).all()
+    # the plan's plant is built from the catalogue's block types only
+    res = r.catalogues["minigrid"]
+    plan = r.options.merge(res.assignment[res.assignment != ""].rename("kit_id").reset_index(),
+                           on=["unit_id", "kit_id"])
+    for col in ("pv_block_id", "battery_block_id", "inverter_id"):
+        assert set(plan[col]) <= set(res.chosen_blocks[col])
+        assert len(res.chosen_blocks[col]) <= config["catalogue"]["max_kit_types_minigrid"]
