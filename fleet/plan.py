@@ -18,7 +18,7 @@ import time
 import zlib
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
-from typing import Any, Callable, Iterable
+from typing import Any, Iterable
 
 import numpy as np
 import pandas as pd
@@ -748,12 +748,11 @@ def _design_conditions_for(sites, cfg: ProgramConfig, weather_sources) -> Design
 @dataclass
 class SiteChunk:
     """What the per-site stages give for a chunk of sites (positions ``first``..): units with
-    their design demand, weather summary, options simulated and screened, and their metrics."""
+    their design demand, weather summary, options screened out, and the simulated options' metrics."""
 
     first: int
     units: pd.DataFrame
     info: pd.DataFrame
-    pairs: pd.DataFrame
     screened: pd.DataFrame
     evaluations: pd.DataFrame
     problems: list
@@ -781,7 +780,7 @@ def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfi
             weather = build_weather(sub, cfg, None, weather_sources, positions=pos)
         except InputError as exc:
             return SiteChunk(int(pos[0]), units.iloc[0:0], pd.DataFrame(), pd.DataFrame(), pd.DataFrame(),
-                             pd.DataFrame(), list(exc.problems), seconds)
+                             list(exc.problems), seconds)
         seconds["weather"] = time.perf_counter() - t
         t = time.perf_counter()
         pairs, screened = build_pairs(units, demand.design, kits, weather, sub, cfg)
@@ -796,8 +795,7 @@ def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfi
         info = weather.info.assign(design_month_sun_hours=rule_of_thumb.design_month_sun_hours(weather.poa_wm2))
         seconds["metrics"] = time.perf_counter() - t
     units = units.assign(site_index=pos[units.site_index.to_numpy()])
-    pairs = pairs.assign(site_idx=pos[pairs.site_idx.to_numpy()])
-    return SiteChunk(int(pos[0]), units, info, pairs, screened, ev, [], seconds)
+    return SiteChunk(int(pos[0]), units, info, screened, ev, [], seconds)
 
 
 def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
@@ -893,10 +891,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
         for k, v in part.seconds.items():
             timings[f"sites: {k} (summed over chunks)"] = timings.get(f"sites: {k} (summed over chunks)", 0.0) + v
     # units and options numbered across the program, in site order
-    offsets = np.cumsum([0] + [len(p.units) for p in parts[:-1]])
     units = pd.concat([p.units for p in parts], ignore_index=True)
-    pairs = pd.concat([p.pairs.assign(unit_idx=p.pairs.unit_idx + o) for p, o in zip(parts, offsets)],
-                      ignore_index=True)
     screened = pd.concat([p.screened for p in parts], ignore_index=True)
     ev = pd.concat([p.evaluations for p in parts], ignore_index=True)
     ev["pair"] = np.arange(len(ev))
