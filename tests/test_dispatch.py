@@ -445,7 +445,7 @@ def test_ac_disconnect_is_the_inverters_at_its_rated_c_rate(kits, params):
 
 
 def test_critical_load_stays_on_after_general_loads_are_shed(kits, params):
-    p, _ = kit_row(kits, params, scheme="minigrid", chemistry="lead_acid")
+    p, _ = kit_row(kits, params, scheme="minigrid", chemistry="lead_acid", battery_id="BAT-LA-02-500")
     load = evening(600.0, 2000.0)
     crit = np.full(HOURS, 150.0, np.float32)
     tr = simulate_trace(sun(1.0, _weather(8, 700.0, 0.4)), load, p, critical_w=crit, shed_separation_soc=0.1)
