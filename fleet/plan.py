@@ -650,8 +650,11 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
             continue
         # options are built once per distinct feasibility rule, only for this scheme and with the
         # columns the solver needs (copies of the whole option table per point grew with the program)
-        mine = ev[ev.scheme == scheme]
         cols = solver_columns(scheme)
+        # only the columns the curves read: a copy of every column per scheme grew with the program
+        need = [*dict.fromkeys(["unit_id", "kit_id", "scheme", "feasible", "lifecycle_cost_usd", "meets_other_targets",
+                                "unmet_fraction_design", *(c for c in cols if c != "cost_usd")])]
+        mine = ev.loc[ev.scheme == scheme, need]
         base = catalogue_options(mine)[cols]
         k_program = int(c[f"max_kit_types_{scheme}"])
         points = [("kit types", float(k), None, int(k)) for k in kit_types]
@@ -798,6 +801,12 @@ def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfi
     return SiteChunk(int(pos[0]), units, info, screened, ev, [], seconds)
 
 
+#: Option columns the rule-of-thumb comparison reads (a slice, not a copy of every column).
+THUMB_COLUMNS = ("unit_id", "site_id", "scheme", "count", "kit_id", "blocks", "battery_blocks", "inverters",
+                 *BLOCK_KINDS, "array_wp", "battery_usable_wh", "target", "feasible", "unmet_fraction_design",
+                 "capex_usd", "lifecycle_cost_usd")
+
+
 def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
                      screened: pd.DataFrame, sun_hours: pd.Series) -> dict:
     """The catalogue stage on the options' metrics and costs: feasible options, the integer
@@ -812,7 +821,8 @@ def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, 
                                              max_types=c[f"max_kit_types_{scheme}"])
     unserved = explain_unserved(units, ev, screened, catalogues, options, cfg)
     comparisons = compare(ev, options, units, catalogues, cfg,
-                          thumb=rule_of_thumb.choose(ev, units, kits, sun_hours) if len(ev) else None)
+                          thumb=rule_of_thumb.choose(ev[[c for c in THUMB_COLUMNS if c in ev]], units, kits, sun_hours)
+                          if len(ev) else None)
     curves = cost_curves(ev, units, cfg, solved=catalogues)
     warnings = []
     for scheme, res in catalogues.items():
@@ -896,6 +906,7 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     ev = pd.concat([p.evaluations for p in parts], ignore_index=True)
     ev["pair"] = np.arange(len(ev))
     info = pd.concat([p.info for p in parts], ignore_index=True)
+    del parts  # the chunks' tables now live in the program's; holding both doubled the memory
     timings["sites"] = time.perf_counter() - t
     warnings += _weather_warnings(info, cfg)
 
