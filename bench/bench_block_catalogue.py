@@ -48,6 +48,7 @@ import numpy as np
 import pandas as pd
 
 from fleet.catalogue import optimise_block_catalogue
+from bench_catalogue import growth_exponent  # bench/ is on the path when run as a script
 
 KINDS = ("pv_block_id", "battery_block_id", "inverter_id")
 HORIZON_YEARS = 20.0
@@ -149,12 +150,6 @@ def synthetic_options(n_villages: int, seed: int = 0, *, climate_cells: int = 20
                             "cost_usd": cost[vi, p, b, i], "pv_block_id": pv_id,
                             "battery_block_id": bt_id, "inverter_id": iv_id})
     return options, village_ids.tolist()
-
-
-def growth_exponent(sizes, seconds) -> float:
-    """Least-squares slope of log(time) against log(villages)."""
-    x, y = np.log(np.asarray(sizes, float)), np.log(np.maximum(np.asarray(seconds, float), 1e-6))
-    return float(np.polyfit(x, y, 1)[0]) if len(x) > 1 else float("nan")
 
 
 def main() -> None:

@@ -4,7 +4,7 @@ each electrically checked, with its bill-of-materials lines.
 A kit (solar home system) serves one household or facility. A minigrid plant
 is modular: a count of standard *PV blocks* (a PV array on its MPPT charge
 controller), a count of *battery blocks* (one battery string at the plant's
-bus voltage, with its own fuse) and a count of *inverters*, all on the plant's
+bus voltage) and a count of *inverters*, all on the plant's
 48 V DC bus. Each electrically compatible (PV block, battery block, inverter)
 triple is a row of the kit table (a plant *template*, ``scheme='minigrid'``,
 one block of each kind); a plant design is a template with its three counts
@@ -34,7 +34,8 @@ rule's key (:data:`REJECTION_RULES`) and a readable reason:
 * a plant's battery block is one string of at least
   :data:`PLANT_MIN_BATTERY_BLOCK_WH` (smaller strings would need many in
   parallel), and a plant parallels at most the configured number of lead-acid
-  strings or :data:`PLANT_LFP_MAX_PARALLEL` LiFePO4 modules (common practice);
+  strings (common practice) or of LiFePO4 blocks (:data:`PLANT_LFP_MAX_PARALLEL`
+  unless the program says; an assumption of ours);
 * every cable and fuse the kit needs exists in the library (:func:`wiring`).
 
 A unit's motor loads need starting (surge) power above their running power
@@ -679,8 +680,7 @@ def candidate_kits(lib: ComponentLibrary, *, voltages_v, max_parallel_strings: i
     rejected : DataFrame, combinations turned down: ``scheme``, ``design``,
         ``rule`` (a key of :data:`REJECTION_RULES`) and a readable ``reason``.
     """
-    b = _Builder(lib, cond, max_parallel_strings)
-    b.max_lfp_blocks = int(max_plant_lifepo4_blocks or PLANT_LFP_MAX_PARALLEL)
+    b = _Builder(lib, cond, max_parallel_strings, int(max_plant_lifepo4_blocks or PLANT_LFP_MAX_PARALLEL))
     for v in voltages_v:
         if v in (12, 24):
             b.household_kits(v)
@@ -692,13 +692,14 @@ def candidate_kits(lib: ComponentLibrary, *, voltages_v, max_parallel_strings: i
 class _Builder:
     """Collects the kits and rejections of :func:`candidate_kits`."""
 
-    def __init__(self, lib: ComponentLibrary, cond: DesignConditions, max_parallel_strings: int):
+    def __init__(self, lib: ComponentLibrary, cond: DesignConditions, max_parallel_strings: int,
+                 max_lfp_blocks: int = PLANT_LFP_MAX_PARALLEL):
         self.lib, self.cond, self.max_parallel = lib, cond, max_parallel_strings
+        self.max_lfp_blocks = max_lfp_blocks
         self.parts = _Parts(lib)
         self.modules = list(self.parts.modules.values())
         self.batteries = list(self.parts.batteries.values())
         self.inverters = sorted(self.parts.inverters.values(), key=lambda r: (r.rated_power_w, r.price_usd))
-        self.max_lfp_blocks = PLANT_LFP_MAX_PARALLEL
         self.rows: list[dict] = []
         self.rejected: list[dict] = []
         self._ctrl: dict = {}
@@ -857,15 +858,8 @@ class _Builder:
                 keep.append(i)
         kits = thin_candidates(pd.DataFrame([rows[i] for i in sorted(keep)]), self.lib, capex)
         bom = pd.DataFrame([line for kid in kits["kit_id"] for line in lines[kid]])
-        kits["capex_usd"] = kits["kit_id"].map(capex).astype(float)
-        kits["battery_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "battery")).fillna(0.0)
-        kits["controller_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "charge_controller")).fillna(0.0)
-        kits["inverter_capex_usd"] = kits["kit_id"].map(_line_cost(bom, "inverter")).fillna(0.0)
+        kits = capex_columns(kits, bom)
         bom["item_id"] = purchase_item_ids(bom, kits)
-        for part in PLANT_PARTS:  # a plant template's capex by block (a kit is all "pv")
-            lines = bom[bom.block_kind.isin([part, "kit"] if part == "pv" else [part])]
-            cost = (lines.quantity_per_kit * lines.unit_price_usd).groupby(lines.kit_id).sum()
-            kits[f"{part}_part_capex_usd"] = kits["kit_id"].map(cost).fillna(0.0)
         lead = kits["chemistry"].eq("lead_acid")
         kits["max_battery_blocks"] = np.where(kits["scheme"].eq("minigrid"),
                                               np.where(lead, self.max_parallel, self.max_lfp_blocks), 1)
@@ -934,9 +928,26 @@ def _component_price(lib: ComponentLibrary, kit: dict):
         yield lib.inverters.at[kit["inverter_id"], "price_usd"]
 
 
-def _line_cost(bom: pd.DataFrame, kind: str) -> pd.Series:
-    sel = bom[bom.component_kind == kind]
-    return (sel.quantity_per_kit * sel.unit_price_usd).groupby(sel.kit_id).sum()
+def capex_columns(kits: pd.DataFrame, bom: pd.DataFrame) -> pd.DataFrame:
+    """``kits`` with its capital-cost columns summed from its BOM lines (USD): ``capex_usd``; the
+    battery, controller and inverter lines (``battery_capex_usd``, ``controller_capex_usd``,
+    ``inverter_capex_usd``: what a replacement costs); and, per :data:`PLANT_PARTS`, the lines of
+    each plant part (``<part>_part_capex_usd``; a household kit's lines all count as ``pv``)."""
+    kits = kits.copy()
+    ext = bom.quantity_per_kit * bom.unit_price_usd
+
+    def summed(sel) -> pd.Series:
+        return kits["kit_id"].map(ext[sel].groupby(bom.kit_id[sel]).sum()).fillna(0.0).astype(float)
+
+    kits["capex_usd"] = summed(np.ones(len(bom), bool))
+    for kind, column in (("battery", "battery_capex_usd"), ("charge_controller", "controller_capex_usd"),
+                         ("inverter", "inverter_capex_usd")):
+        kits[column] = summed((bom.component_kind == kind).to_numpy())
+    if "block_kind" in bom:
+        for part in PLANT_PARTS:
+            kits[f"{part}_part_capex_usd"] = summed(bom.block_kind.isin([part, "kit"] if part == "pv" else [part])
+                                                    .to_numpy())
+    return kits
 
 
 def kernel_parameters(kits: pd.DataFrame, tables, *, reconnect_hysteresis_soc: float,

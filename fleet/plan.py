@@ -364,11 +364,13 @@ def plant_design_label(kit_rows: pd.DataFrame, n_pv, n_bat, n_inv) -> np.ndarray
     """'3 x PV48-..., 2 x BT48-..., 2 x INV-...' for plants, '' for household kits."""
     if "scheme" not in kit_rows or "pv_block_id" not in kit_rows:
         return np.full(len(kit_rows), "", dtype=object)
-    plant = (kit_rows.scheme.to_numpy() == "minigrid")
-    return np.array([f"{int(a)} x {p}, {int(b)} x {q}, {int(c)} x {r}" if is_plant else ""
-                     for is_plant, a, p, b, q, c, r in zip(plant, n_pv, kit_rows.pv_block_id, n_bat,
-                                                           kit_rows.battery_block_id, n_inv, kit_rows.inverter_id)],
-                    dtype=object)
+    out = np.full(len(kit_rows), "", dtype=object)
+    plant = np.flatnonzero(kit_rows.scheme.to_numpy() == "minigrid")
+    pv, bt, inv = (kit_rows[c].to_numpy()[plant] for c in BLOCK_KINDS)
+    out[plant] = [f"{int(a)} x {p}, {int(b)} x {q}, {int(c)} x {r}"
+                  for a, p, b, q, c, r in zip(np.asarray(n_pv)[plant], pv, np.asarray(n_bat)[plant], bt,
+                                              np.asarray(n_inv)[plant], inv)]
+    return out
 
 
 def reprice_evaluations(ev: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
@@ -649,9 +651,8 @@ def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, ki
         if not scheme_units:
             continue
         # options are built once per distinct feasibility rule, only for this scheme and with the
-        # columns the solver needs (copies of the whole option table per point grew with the program)
+        # columns the curves read (copies of the whole option table per point grew with the program)
         cols = solver_columns(scheme)
-        # only the columns the curves read: a copy of every column per scheme grew with the program
         need = [*dict.fromkeys(["unit_id", "kit_id", "scheme", "feasible", "lifecycle_cost_usd", "meets_other_targets",
                                 "unmet_fraction_design", *(c for c in cols if c != "cost_usd")])]
         mine = ev.loc[ev.scheme == scheme, need]

@@ -32,6 +32,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError, Problem
+from .kits import capex_columns
 
 #: File in a run folder holding what ``fleet reprice`` needs from the run.
 STATE_FILE = "plan_state.pkl.gz"
@@ -174,23 +175,11 @@ def _is_number(value) -> bool:
 
 def apply_prices(kits: pd.DataFrame, bom: pd.DataFrame, prices: dict[str, float]) -> tuple[pd.DataFrame, pd.DataFrame]:
     """New unit prices on every candidate kit's BOM lines, and the kits' capex columns summed
-    again from their lines (``capex_usd`` and the battery, controller and inverter shares)."""
+    again from their lines (:func:`fleet.kits.capex_columns`)."""
     bom = bom.copy()
     new = bom.component_id.map(prices)
     bom["unit_price_usd"] = new.where(new.notna(), bom.unit_price_usd).astype(float)
-    ext = bom.quantity_per_kit * bom.unit_price_usd
-    kits = kits.copy()
-    kits["capex_usd"] = kits.kit_id.map(ext.groupby(bom.kit_id).sum()).fillna(0.0).astype(float)
-    for kind, column in (("battery", "battery_capex_usd"), ("charge_controller", "controller_capex_usd"),
-                         ("inverter", "inverter_capex_usd")):
-        part = ext[bom.component_kind == kind].groupby(bom.kit_id[bom.component_kind == kind]).sum()
-        kits[column] = kits.kit_id.map(part).fillna(0.0).astype(float)
-    if "block_kind" in bom:
-        from .kits import PLANT_PARTS
-        for part in PLANT_PARTS:
-            sel = bom.block_kind.isin([part, "kit"] if part == "pv" else [part])
-            kits[f"{part}_part_capex_usd"] = kits.kit_id.map(ext[sel].groupby(bom.kit_id[sel]).sum()).fillna(0.0).astype(float)
-    return kits, bom
+    return capex_columns(kits, bom), bom
 
 
 def save_state(result, path) -> None:
