@@ -42,6 +42,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
     ("catalogue", "spares_fraction"): (float, 0.0, 1.0, "fraction"),
     ("catalogue", "solver"): (str, None, None, "cbc or highs"),
     ("catalogue", "time_limit_s"): (float, 1.0, None, "s"),
+    ("catalogue", "option_search"): (str, None, None, "bounded or every"),
     ("system", "voltages_v"): (list, None, None, "V"),
     ("system", "reconnect_hysteresis_soc"): (float, 0.0, 0.5, "state of charge"),
     ("system", "max_parallel_battery_strings"): (int, 1, 10, "strings"),
@@ -83,7 +84,7 @@ SCHEMA: dict[tuple[str, str], tuple[type, float | None, float | None, str]] = {
 ALLOWED_VOLTAGES_V = (12, 24, 48)
 #: keys that may be absent (absent tilt/azimuth: tilt = |latitude|, at least 10 deg, facing the equator)
 OPTIONAL_KEYS = {("pv", "tilt_deg"), ("pv", "azimuth_deg"), ("transport", "depots_file"),
-                 ("system", "max_plant_lifepo4_blocks")}
+                 ("system", "max_plant_lifepo4_blocks"), ("catalogue", "option_search")}
 #: keys a program file does not inherit from the bundled demo program (they name demo files)
 NOT_INHERITED = {("transport", "depots_file")}
 NO_DEPOTS_NOTE = "no depots file (program [transport] depots_file): transport cost is zero."
@@ -183,6 +184,9 @@ def validate_config(raw: dict[str, Any], label: str) -> ProgramConfig:
     solver = out.get("catalogue", {}).get("solver")
     if solver is not None and solver not in ("cbc", "highs"):
         problems.append(Problem(label, None, "catalogue.solver", f"'{solver}' is not one of cbc, highs"))
+    search = out.get("catalogue", {}).get("option_search")
+    if search is not None and search not in ("bounded", "every"):
+        problems.append(Problem(label, None, "catalogue.option_search", f"'{search}' is not one of bounded, every"))
     missing = [f"{s}.{k}" for (s, k) in SCHEMA if k not in out.get(s, {}) and (s, k) not in OPTIONAL_KEYS]
     if missing and not problems:
         problems.append(Problem(label, None, None, "missing keys: " + ", ".join(missing)))

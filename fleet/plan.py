@@ -95,6 +95,10 @@ class PlanResult:
     tier_profiles: dict | None = None
     weather_sources: dict | None = None
     scheduler: str = "inprocess"
+    #: options listed but not simulated (:data:`CANDIDATE_COLUMNS`): each one's lower-bound cost
+    #: showed that no answer of the run could use it (:mod:`fleet.search`)
+    candidates: pd.DataFrame = field(default_factory=pd.DataFrame)
+    search_rounds: int = 0  # catalogue rounds that simulated more options
 
 
 def array_losses(cfg: ProgramConfig) -> float:
@@ -398,6 +402,53 @@ def reprice_evaluations(ev: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig
     return out
 
 
+def calendar_lives(kit_rows: pd.DataFrame, battery_temp_c) -> np.ndarray:
+    """Calendar life (years) of each option's battery at its temperature
+    (:func:`fleet.battery.calendar_life_at`, per chemistry)."""
+    chem = kit_rows.chemistry.to_numpy()
+    temp = np.asarray(battery_temp_c, float)
+    out = np.zeros(len(kit_rows))
+    for name in np.unique(chem):
+        rows = chem == name
+        out[rows] = battery.calendar_life_at(kit_rows.calendar_life_years.to_numpy()[rows], temp[rows], name)
+    return out
+
+
+def _option_delivery(pairs, cfg, sites, site_delivery_usd) -> np.ndarray:
+    """One delivery (USD) to each option's site: ``site_delivery_usd`` per site, else what the
+    program's depots give, else 0."""
+    depots = getattr(cfg, "depots", None)
+    if site_delivery_usd is None and sites is not None and depots is not None:
+        site_delivery_usd = transport.site_transport(sites, depots, cfg["transport"]).delivery_usd.to_numpy()
+    return (np.asarray(site_delivery_usd, dtype=float)[pairs.site_idx.to_numpy()]
+            if site_delivery_usd is not None else np.zeros(len(pairs)))
+
+
+def lower_bound_costs(pairs: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
+                      sites=None, weather_info=None, site_delivery_usd=None) -> pd.DataFrame:
+    """A lower bound on each option's lifecycle cost, before it is simulated (:mod:`fleet.search`).
+
+    The simulated cost (:func:`evaluate`) differs only by the battery's life, the sooner of its
+    cycling wear-out and its calendar life (:func:`fleet.battery.life_from_damage`); with the
+    calendar life the cost is lowest, because lifecycle cost never rises with a longer life
+    (each replacement comes later or drops out, and the last battery bought keeps more of its
+    value at the horizon). Returns, per option: ``lb_cost_usd`` (USD, for all the unit's kits),
+    ``calendar_life_years``, ``delivery_usd`` (one delivery), ``array_wp`` and
+    ``battery_usable_wh`` (the kit's or plant's).
+    """
+    k = kits.iloc[pairs.kit_idx.to_numpy()].reset_index(drop=True)
+    u = units.iloc[pairs.unit_idx.to_numpy()].reset_index(drop=True)
+    qty = plant_quantities(k, *option_counts(pairs))
+    temp = (battery_temperature_c(sites, cfg, weather_info)[pairs.site_idx.to_numpy()]
+            if sites is not None else np.full(len(pairs), 25.0))
+    calendar = calendar_lives(k, temp)
+    delivery = _option_delivery(pairs, cfg, sites, site_delivery_usd)
+    lcc_one, _, _ = _option_costs_delivered(qty, calendar, delivery, pairs.assign(scheme=u.scheme.to_numpy()), cfg)
+    return pd.DataFrame({"lb_cost_usd": lcc_one * u["count"].to_numpy(float), "calendar_life_years": calendar,
+                         "delivery_usd": delivery, "array_wp": qty.array_wp.to_numpy(float),
+                         "battery_usable_wh": qty.battery_usable_wh.to_numpy(float)})
+
+
 def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=None,
              site_delivery_usd=None) -> pd.DataFrame:
     """Reliability, service and lifecycle cost of every simulated option.
@@ -428,18 +479,9 @@ def evaluate(pairs, metrics, units, design, kits, cfg, sites=None, weather_info=
     needed = required_tier(units, sites)[pairs.unit_idx.to_numpy()] if sites is not None else np.zeros(len(u), int)
     temp_batt = (battery_temperature_c(sites, cfg, weather_info)[pairs.site_idx.to_numpy()]
                  if sites is not None else np.full(len(pairs), 25.0))
-    chem = k.chemistry.to_numpy()
-    calendar = np.zeros(len(k))
-    for name in np.unique(chem):
-        rows = chem == name
-        calendar[rows] = battery.calendar_life_at(k.calendar_life_years.to_numpy()[rows], temp_batt[rows], name)
-    life = battery.life_from_damage(m["cycle_damage"].mean(axis=1), calendar)
+    life = battery.life_from_damage(m["cycle_damage"].mean(axis=1), calendar_lives(k, temp_batt))
     p = cfg["program"]
-    depots = getattr(cfg, "depots", None)
-    if site_delivery_usd is None and sites is not None and depots is not None:
-        site_delivery_usd = transport.site_transport(sites, depots, cfg["transport"]).delivery_usd.to_numpy()
-    delivery = (np.asarray(site_delivery_usd, dtype=float)[pairs.site_idx.to_numpy()]
-                if site_delivery_usd is not None else np.zeros(len(pairs)))
+    delivery = _option_delivery(pairs, cfg, sites, site_delivery_usd)
     lcc_one, salvage_one, transport_one = _option_costs_delivered(qty, life, delivery,
                                                                   pairs.assign(scheme=u.scheme.to_numpy()), cfg)
     served_kwh_year = m["served_wh"].mean(axis=1) / 1000.0  # the kernel ran whole plants
@@ -583,9 +625,11 @@ def types_used(scheme: str, chosen: pd.DataFrame) -> int:
     return int(chosen.kit_id.nunique())
 
 
-def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = None) -> pd.DataFrame:
+def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = None,
+            one_type: dict[str, CatalogueResult] | None = None) -> pd.DataFrame:
     """The plan beside a custom best kit per unit, a single kit type per scheme and, when
-    given, the rule-of-thumb sizing (:mod:`fleet.rule_of_thumb`), with simulated reliability."""
+    given, the rule-of-thumb sizing (:mod:`fleet.rule_of_thumb`), with simulated reliability.
+    ``one_type``: the one-type catalogue per scheme when already solved."""
     rows = []
     for scheme, res in catalogues.items():
         sch_units = units[units.scheme == scheme].unit_id.tolist()
@@ -594,7 +638,7 @@ def compare(ev, options, units, catalogues, cfg, thumb: pd.DataFrame | None = No
         opts = options[options.scheme == scheme]
         plan = opts.merge(res.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
         custom = custom_best(opts) if not opts.empty else opts
-        one = solve_catalogue(scheme, opts, sch_units, cfg, max_types=1)
+        one = (one_type or {}).get(scheme) or solve_catalogue(scheme, opts, sch_units, cfg, max_types=1)
         single = opts.merge(one.assignment.rename("kit_id").reset_index(), on=["unit_id", "kit_id"])
         one_name = "one type of each block for all" if scheme == "minigrid" else "one kit type for all"
         designs = [("plan (standard catalogue)", plan, len(res.chosen_kits)),
@@ -627,71 +671,240 @@ def _chosen_cost(options: pd.DataFrame, res: CatalogueResult) -> tuple[int, floa
 #: Points of the cost curves every run draws: catalogue sizes, and energy targets (unmet fraction).
 CURVE_KIT_TYPES = tuple(range(1, 9))
 CURVE_TARGETS = (0.01, 0.02, 0.05, 0.10, 0.20)
+#: Time limit of each cost-curve point's integer program, s (at most the program's own).
+CURVE_TIME_LIMIT_S = 20.0
 
 
-def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig, *, kit_types=CURVE_KIT_TYPES,
-                targets=CURVE_TARGETS, time_limit_s: float = 20.0,
-                solved: dict[str, CatalogueResult] | None = None) -> pd.DataFrame:
+@dataclass(frozen=True)
+class SolvePoint:
+    """One catalogue program: a scheme, the most types allowed and the energy target (None:
+    every unit's own target); ``plan`` for the run's own catalogue (full time limit, LP bound)."""
+
+    scheme: str
+    max_types: int
+    target: float | None
+    plan: bool = False
+
+
+def _curve_point_list(scheme: str, cfg: ProgramConfig, uniform: bool, kit_types=CURVE_KIT_TYPES,
+                      targets=CURVE_TARGETS) -> list[tuple[str, float, SolvePoint]]:
+    """(varied, value, program) of each cost-curve point of a scheme; a point whose options are
+    the run's own (every catalogue size; the program's target when no site sets its own) is
+    the plan's program with another number of types."""
+    k_program = int(cfg["catalogue"][f"max_kit_types_{scheme}"])
+    t_program = cfg["program"]["reliability_target"]
+    out = []
+    for k in kit_types:
+        out.append(("kit types", float(k), SolvePoint(scheme, int(k), None, plan=int(k) == k_program)))
+    for t in targets:
+        same = abs(t - t_program) < 1e-12 and uniform
+        out.append(("energy target (unmet fraction)", float(t),
+                    SolvePoint(scheme, k_program, None if same else float(t), plan=same)))
+    return out
+
+
+def _feasible_at(ev: pd.DataFrame, target: float | None, cfg: ProgramConfig) -> pd.Series:
+    """Which options count under a uniform energy target (None: the options' own feasibility):
+    a design-year unmet fraction at most ``target`` and the other targets met."""
+    if target is None:
+        return ev.feasible
+    energy_mode = cfg["program"]["service_target"] in ("unmet", "both")
+    return ev.meets_other_targets & ((ev.unmet_fraction_design <= target + 1e-12) if energy_mode else True)
+
+
+def options_at(ev: pd.DataFrame, scheme: str, target: float | None, cfg: ProgramConfig) -> pd.DataFrame:
+    """Simulated options of a scheme the catalogue may use under ``target`` (:func:`_feasible_at`),
+    with the program's columns and the option's row in ``ev`` (``pair``)."""
+    need = [*dict.fromkeys(["unit_id", "kit_id", "scheme", "feasible", "lifecycle_cost_usd", "pair",
+                            *(c for c in solver_columns(scheme) if c != "cost_usd")])]
+    mine = ev.loc[ev.scheme.to_numpy() == scheme]
+    return catalogue_options(mine[need].assign(feasible=_feasible_at(mine, target, cfg)))
+
+
+def _optimistic_options(ev, cand_best, units, kits, point: SolvePoint, cfg) -> pd.DataFrame:
+    """The options of a catalogue program with every option not simulated taken as feasible at
+    its lower-bound cost (:mod:`fleet.search`); ``candidate`` is its row in ``cand_best``
+    (-1 for a simulated option). Per plant template only the cheapest is kept."""
+    sim = options_at(ev, point.scheme, point.target, cfg).assign(candidate=-1)
+    if not len(cand_best):
+        return sim
+    c = cand_best[units.scheme.to_numpy()[cand_best.unit_idx.to_numpy(np.int64)] == point.scheme]
+    if not len(c):
+        return sim
+    k = kits.iloc[c.kit_idx.to_numpy()]
+    extra = pd.DataFrame({"unit_id": units.unit_id.to_numpy()[c.unit_idx.to_numpy()], "kit_id": k.kit_id.to_numpy(),
+                          "scheme": point.scheme, "cost_usd": c.lb_cost_usd.to_numpy(float), "pair": -1,
+                          "candidate": c.index.to_numpy(),
+                          **{col: k[col].to_numpy() for col in BLOCK_KINDS if point.scheme == "minigrid" and col in k}})
+    both = pd.concat([sim, extra], ignore_index=True)
+    # simulated first among equal costs; one option per (unit, kit) (a plant template's cheapest)
+    both = both.assign(_not_simulated=both.candidate >= 0).sort_values(["cost_usd", "_not_simulated"], kind="stable")
+    return both.drop_duplicates(["unit_id", "kit_id"]).drop(columns="_not_simulated").sort_index()
+
+
+def _cheapest_candidates(cand: pd.DataFrame) -> pd.DataFrame:
+    """Per (unit, kit) the option not simulated with the lowest bound (the only one an optimistic
+    program can use)."""
+    if not len(cand):
+        return cand
+    return cand.loc[cand.groupby(["unit_idx", "kit_idx"], sort=False).lb_cost_usd.idxmin()]
+
+
+def settle_catalogues(points: list[SolvePoint], ev: pd.DataFrame, cand: pd.DataFrame | None, units: pd.DataFrame,
+                      kits: pd.DataFrame, cfg: ProgramConfig, simulate=None, tracker=None):
+    """Solve catalogue programs, simulating the options their solutions need (:mod:`fleet.search`).
+
+    Each round solves the programs not yet settled with the options not simulated taken as
+    feasible at their lower bounds, simulates (``simulate(rows of cand)`` -> evaluations) the
+    ones the solutions use, and repeats until every solution uses simulated options only; a
+    settled solution stays optimal as more options are simulated (their costs only rise).
+    After ``fleet.search.MAX_ROUNDS`` rounds, or without ``simulate``, a program left unsettled is
+    solved over the simulated options and its status says so, with the optimistic program's
+    cost as its bound. Returns (point -> CatalogueResult, evaluations with the new options,
+    candidates left, rounds).
+    """
+    import dataclasses
+
+    from .search import MAX_ROUNDS
+
+    tracker = tracker or _Quiet()
+    c = cfg["catalogue"]
+    cand = cand if cand is not None else pd.DataFrame(columns=list(CANDIDATE_COLUMNS))
+    scheme_units = {s: units.unit_id[units.scheme == s].tolist() for s in ("shs", "minigrid")}
+    results: dict[SolvePoint, CatalogueResult] = {}
+    pending = list(dict.fromkeys(points))
+    rounds = 0
+
+    def solve(point, opts):
+        limit = None if point.plan else min(float(c["time_limit_s"]), CURVE_TIME_LIMIT_S)
+        return solve_catalogue(point.scheme, opts, scheme_units[point.scheme], cfg, max_types=point.max_types,
+                               time_limit_s=limit, lp_bound=point.plan)
+
+    while pending:
+        best = _cheapest_candidates(cand)
+        with ThreadPoolExecutor(max_workers=2) as pool:  # the solver runs as a separate process
+            by_options = {(p.scheme, p.target): None for p in pending}  # programs with the same options
+            for key in by_options:
+                by_options[key] = _optimistic_options(ev, best, units, kits, SolvePoint(key[0], 1, key[1]), cfg)
+            opts = {p: by_options[(p.scheme, p.target)] for p in pending}
+            futures = {p: pool.submit(solve, p, opts[p]) for p in pending}
+            solved = {p: f.result() for p, f in futures.items()}
+        need, unsettled = set(), []
+        for p in pending:
+            chosen = _chosen_rows(opts[p], solved[p])
+            used = chosen.candidate[chosen.candidate >= 0].to_numpy()
+            if len(used):
+                unsettled.append(p)
+                need.update(used.tolist())
+                need.update(_next_candidates(cand, chosen.unit_id[chosen.candidate >= 0], units, kits, p.scheme,
+                                             solved[p].chosen_kits).tolist())
+                # a unit with no simulated option that counts here is served only by hope: all of its
+                # options must be known (the big penalty on an unserved unit makes the program try each)
+                # and from round EXHAUST_FROM_ROUND on, any unit still given an unsimulated option gets
+                # all of its options simulated (the types the program tries change from round to round)
+                known = opts[p].unit_id[opts[p].candidate < 0]
+                hopeful = chosen.unit_id[chosen.candidate >= 0].to_numpy()
+                hopeful = hopeful if rounds + 1 >= EXHAUST_FROM_ROUND else np.setdiff1d(hopeful, known.to_numpy())
+                if len(hopeful):
+                    wanted = np.isin(units.unit_id.to_numpy(), hopeful)
+                    need.update(cand.index[wanted[cand.unit_idx.to_numpy(np.int64)]].tolist())
+            else:
+                results[p] = solved[p]
+        if not unsettled:
+            break
+        if simulate is None or rounds >= MAX_ROUNDS:
+            for p in unsettled:  # the best over what was simulated, bounded by the optimistic program
+                res = solve(p, options_at(ev, p.scheme, p.target, cfg))
+                bound = min(res.lower_bound_usd, solved[p].lower_bound_usd if p.plan else solved[p].objective_usd)
+                gap = (res.objective_usd - bound) / res.objective_usd if res.objective_usd > 0 else 0.0
+                results[p] = dataclasses.replace(
+                    res, lower_bound_usd=bound, gap=max(gap, res.gap),
+                    status=f"{res.status} over the options simulated (search not settled after {rounds} rounds)")
+            break
+        rounds += 1
+        rows = cand.loc[sorted(need)]
+        tracker.stage(f"catalogue round {rounds}: {len(rows):,} more options simulated for "
+                      f"{len(unsettled)} catalogue program(s)")
+        new = simulate(rows)
+        ev = pd.concat([ev, new], ignore_index=True)
+        ev["pair"] = np.arange(len(ev))
+        cand = cand.drop(index=rows.index)
+        pending = unsettled
+    return results, ev, cand, rounds
+
+
+#: Options not simulated of one unit and kit (or plant template) simulated together in a
+#: catalogue round: the ones with the lowest bounds.
+ROUND_BATCH = 3
+#: From this catalogue round on, a unit still given an option not simulated has all its options
+#: simulated (bounds the number of rounds; each round builds the weather of its sites again).
+EXHAUST_FROM_ROUND = 4
+
+
+def _next_candidates(cand: pd.DataFrame, unit_ids, units: pd.DataFrame, kits: pd.DataFrame, scheme: str,
+                     chosen_types) -> np.ndarray:
+    """Rows of ``cand`` worth simulating with a solution's unsimulated choices (fewer rounds):
+    for each of ``unit_ids``, its options under the solution's types (household kits among
+    ``chosen_types``; plant templates whose blocks all are), ``ROUND_BATCH`` per kit, lowest
+    bounds first."""
+    chosen = set(map(str, chosen_types))
+    if scheme == "minigrid":
+        usable = np.all([kits[c].astype(str).isin(chosen).to_numpy() for c in BLOCK_KINDS if c in kits], axis=0)
+    else:
+        usable = kits.kit_id.astype(str).isin(chosen).to_numpy()
+    wanted = np.isin(units.unit_id.to_numpy(), np.asarray(unit_ids))
+    rows = cand[wanted[cand.unit_idx.to_numpy(np.int64)] & usable[cand.kit_idx.to_numpy(np.int64)]]
+    if not len(rows):
+        return np.zeros(0, np.int64)
+    rows = rows.sort_values("lb_cost_usd", kind="stable")
+    return rows.groupby(["unit_idx", "kit_idx"], sort=False).head(ROUND_BATCH).index.to_numpy()
+
+
+def _chosen_rows(options: pd.DataFrame, res: CatalogueResult) -> pd.DataFrame:
+    """The options a catalogue solution gives its units."""
+    return options.merge(res.assignment[res.assignment != ""].rename("kit_id").reset_index(),
+                         on=["unit_id", "kit_id"])
+
+
+def catalogue_points(units: pd.DataFrame, cfg: ProgramConfig, ev: pd.DataFrame) -> list[SolvePoint]:
+    """Every catalogue program a run solves: the plan's, one type for all, the cost curves'."""
+    c = cfg["catalogue"]
+    t_program = cfg["program"]["reliability_target"]
+    uniform = bool(np.allclose(ev.target.to_numpy(float), t_program)) if len(ev) else True
+    out = []
+    for scheme in ("shs", "minigrid"):
+        if not (units.scheme == scheme).any():
+            continue
+        out.append(SolvePoint(scheme, int(c[f"max_kit_types_{scheme}"]), None, plan=True))
+        out.append(SolvePoint(scheme, 1, None, plan=int(c[f"max_kit_types_{scheme}"]) == 1))
+        out += [p for _, _, p in _curve_point_list(scheme, cfg, uniform)]
+    return list(dict.fromkeys(out))
+
+
+def cost_curves(ev: pd.DataFrame, units: pd.DataFrame, cfg: ProgramConfig,
+                solved: dict[SolvePoint, CatalogueResult]) -> pd.DataFrame:
     """Lifecycle cost of the best catalogue against the number of kit types allowed (at the
     program's targets) and against the energy target (at the program's number of types), per
-    scheme: one integer program per point (:func:`fleet.catalogue.optimise_catalogue`).
+    scheme: one integer program per point (:func:`settle_catalogues` solves them).
 
     Under a uniform target ``t`` an option counts when its design-year unmet fraction is at
     most ``t`` and it meets the other targets (critical and deferrable loads, tier of service).
     Returns one row per point with the solver's status and gap (0 when the solver proves the
-    point optimal; no separate LP bound is solved for the curves). ``solved`` (the run's own
-    catalogues) is reused at the program's point.
+    point optimal; no separate LP bound is solved for the curves).
     """
     c = cfg["catalogue"]
-    limit = min(float(c["time_limit_s"]), time_limit_s)
-    energy_mode = cfg["program"]["service_target"] in ("unmet", "both")
+    t_program = cfg["program"]["reliability_target"]
+    uniform = bool(np.allclose(ev.target.to_numpy(float), t_program)) if len(ev) else True
     rows = []
     for scheme in ("shs", "minigrid"):
         scheme_units = units[units.scheme == scheme].unit_id.tolist()
         if not scheme_units:
             continue
-        # options are built once per distinct feasibility rule, only for this scheme and with the
-        # columns the curves read (copies of the whole option table per point grew with the program)
-        cols = solver_columns(scheme)
-        need = [*dict.fromkeys(["unit_id", "kit_id", "scheme", "feasible", "lifecycle_cost_usd", "meets_other_targets",
-                                "unmet_fraction_design", *(c for c in cols if c != "cost_usd")])]
-        mine = ev.loc[ev.scheme == scheme, need]
-        base = catalogue_options(mine)[cols]
-        k_program = int(c[f"max_kit_types_{scheme}"])
-        points = [("kit types", float(k), None, int(k)) for k in kit_types]
-        points += [("energy target (unmet fraction)", float(t), float(t), k_program) for t in targets]
-        t_program = cfg["program"]["reliability_target"]
-        uniform = bool(np.allclose(ev.target.to_numpy(float), t_program)) if len(ev) else True
-
-        def options_at(target):
-            if target is None:
-                return base
-            ok = mine.meets_other_targets & ((mine.unmet_fraction_design <= target + 1e-12) if energy_mode else True)
-            return catalogue_options(mine.assign(feasible=ok))[cols]
-
-        def solve(target, k):
-            o = options_at(target)
-            res = solve_catalogue(scheme, o, scheme_units, cfg, max_types=k, time_limit_s=limit, lp_bound=False)
-            return res, _chosen_cost(o, res)
-
-        # the run's own catalogue is a point when the options are the same: always on the kit-type
-        # curve, and on the target curve when no site sets its own target; the other points are
-        # solved two at a time (the solver runs as a separate process)
-        results = {}
-        jobs = {}
-        with ThreadPoolExecutor(max_workers=2) as pool:
-            for j, (varied, value, target, k) in enumerate(points):
-                same_options = varied == "kit types" or (abs(value - t_program) < 1e-12 and uniform)
-                if k == k_program and same_options and solved is not None and scheme in solved:
-                    results[j] = (solved[scheme], _chosen_cost(base, solved[scheme]))
-                else:
-                    jobs[j] = pool.submit(solve, target, k)
-            for j, f in jobs.items():
-                results[j] = f.result()
-        for j, (varied, value, target, k) in enumerate(points):
-            res, (n_served, cost) = results[j]
+        for varied, value, point in _curve_point_list(scheme, cfg, uniform):
+            res = solved[point]
+            n_served, cost = _chosen_cost(options_at(ev, scheme, point.target, cfg), res)
             rows.append({
-                "scheme": scheme, "varied": varied, "value": value, "kit types allowed": k,
+                "scheme": scheme, "varied": varied, "value": value, "kit types allowed": point.max_types,
                 "kit types chosen": len(res.chosen_kits), "units served": n_served,
                 "units in scheme": len(scheme_units),
                 "lifecycle cost (USD)": cost,
@@ -761,6 +974,7 @@ class SiteChunk:
     evaluations: pd.DataFrame
     problems: list
     seconds: dict
+    candidates: pd.DataFrame = field(default_factory=pd.DataFrame)  # options not simulated (CANDIDATE_COLUMNS)
 
 
 def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfig, delivery_usd,
@@ -789,15 +1003,133 @@ def plan_site_chunk(positions, *, sites, kits, params, tables, cfg: ProgramConfi
         t = time.perf_counter()
         pairs, screened = build_pairs(units, demand.design, kits, weather, sub, cfg)
         seconds["options"] = time.perf_counter() - t
-        t = time.perf_counter()
-        metrics = simulate_chunked(weather, demand, unit_parameters(units, cfg), params, tables, pairs, _Quiet(),
-                                   battery_temperature_c(sub, cfg, weather.info))
-        seconds["dispatch"] = time.perf_counter() - t
-        t = time.perf_counter()
-        ev = evaluate(pairs, metrics, units, demand.design, kits, cfg, sub, weather.info,
-                      site_delivery_usd=np.asarray(delivery_usd, float)[pos])
+        run = _chunk_simulator(weather, demand, units, sub, kits, params, tables, cfg,
+                               np.asarray(delivery_usd, float)[pos], seconds)
         info = weather.info.assign(design_month_sun_hours=rule_of_thumb.design_month_sun_hours(weather.poa_wm2))
-        seconds["metrics"] = time.perf_counter() - t
+        if option_search(cfg) == "every":
+            ev, cand = run(pairs), pairs.iloc[0:0].assign(lb_cost_usd=0.0)
+        else:
+            t = time.perf_counter()
+            ev, cand = search_site_options(pairs, units, kits, cfg, sub, weather.info,
+                                           np.asarray(delivery_usd, float)[pos],
+                                           info.design_month_sun_hours.to_numpy(float), run)
+            seconds["search"] = time.perf_counter() - t - seconds.get("dispatch", 0.0) - seconds.get("metrics", 0.0)
+    cand = _candidate_table(cand, pos)
+    units = units.assign(site_index=pos[units.site_index.to_numpy()])
+    return SiteChunk(int(pos[0]), units, info, screened, ev, [], seconds, cand)
+
+
+def option_search(cfg: ProgramConfig) -> str:
+    """How options are chosen for simulation: 'bounded' (default; :mod:`fleet.search`) or
+    'every' (every option build_pairs lists is simulated)."""
+    return str(cfg["catalogue"].get("option_search", "bounded"))
+
+
+#: Columns of the table of options not simulated (numbers within the program: units, sites and
+#: kits by position).
+CANDIDATE_COLUMNS = ("unit_idx", "site_idx", "kit_idx", "blocks", "battery_blocks", "inverters", "target",
+                     "lb_cost_usd", "calendar_life_years", "delivery_usd")
+
+
+def _candidate_table(cand: pd.DataFrame, pos: np.ndarray) -> pd.DataFrame:
+    """Options of a chunk left unsimulated, slim, with sites numbered across the program (units
+    are numbered across the program when the chunks are joined)."""
+    out = pd.DataFrame({c: cand[c].to_numpy() if c in cand else np.zeros(len(cand)) for c in CANDIDATE_COLUMNS})
+    out["site_idx"] = pos[out.site_idx.to_numpy(np.int64)] if len(out) else out.site_idx
+    for c in ("unit_idx", "site_idx", "kit_idx"):
+        out[c] = out[c].astype(np.int32)
+    for c in ("blocks", "battery_blocks", "inverters"):
+        out[c] = out[c].astype(np.int16)
+    return out
+
+
+def _chunk_simulator(weather, demand, units, sites, kits, params, tables, cfg, delivery_usd, seconds):
+    """A function simulating options (a pairs table of these sites) and returning their
+    evaluations; adds its time to ``seconds['dispatch']`` and ``seconds['metrics']``."""
+    uparams = unit_parameters(units, cfg)
+    temp = battery_temperature_c(sites, cfg, weather.info)
+
+    def run(rows: pd.DataFrame) -> pd.DataFrame:
+        rows = rows.reset_index(drop=True)
+        t = time.perf_counter()
+        metrics = simulate_chunked(weather, demand, uparams, params, tables, rows, _Quiet(), temp)
+        seconds["dispatch"] = seconds.get("dispatch", 0.0) + time.perf_counter() - t
+        t = time.perf_counter()
+        ev = evaluate(rows, metrics, units, demand.design, kits, cfg, sites, weather.info,
+                      site_delivery_usd=delivery_usd)
+        seconds["metrics"] = seconds.get("metrics", 0.0) + time.perf_counter() - t
+        return ev
+
+    return run
+
+
+def search_site_options(pairs, units, kits, cfg, sites, weather_info, delivery_usd, sun_hours, run):
+    """Simulate the options of a chunk that some per-unit answer needs (:func:`fleet.search.settle_groups`):
+    each unit's cheapest feasible kit (household kits) or each plant template's cheapest feasible
+    block counts, and the option the rule of thumb gives it (:func:`fleet.rule_of_thumb.choose`:
+    the cheapest meeting the rule, else the largest). Returns (evaluations of the simulated
+    options in the order of ``pairs``, the options not simulated with their lower bounds).
+    The catalogue rounds simulate more where the catalogue needs them (:func:`choose_catalogue`)."""
+    from .search import group_codes, settle_groups
+
+    bounds = lower_bound_costs(pairs, units, kits, cfg, sites, weather_info, delivery_usd)
+    lb = bounds.lb_cost_usd.to_numpy(float)
+    u = pairs.unit_idx.to_numpy(np.int64)
+    scheme = units.scheme.to_numpy()[u]
+    plant = scheme == "minigrid"
+    custom = group_codes(u, np.where(plant, pairs.kit_idx.to_numpy(np.int64), -1))
+    daily = (units.daily_energy_wh + units.deferrable_wh_day).to_numpy(float)[u]
+    wp, usable = bounds.array_wp.to_numpy(float), bounds.battery_usable_wh.to_numpy(float)
+    meets = rule_of_thumb.rule_needs(wp, usable, daily, np.asarray(sun_hours, float)[pairs.site_idx.to_numpy()],
+                                     scheme)[2]
+    # the rule's fallback when no option meets it: the largest array, then the most storage
+    frame = pd.DataFrame({"u": u, "wp": wp, "usable": usable})
+    top_wp = frame.groupby("u").wp.transform("max").to_numpy()
+    top_usable = frame.usable.where(wp == top_wp).groupby(frame.u).transform("max").to_numpy()
+    any_meets = np.bincount(u[meets], minlength=len(units)).astype(bool)[u]
+    rule = np.where(any_meets, meets, (wp == top_wp) & (usable == top_usable))
+    # the custom best under the program's targets and under each uniform target of the cost curves
+    # (their catalogues then need few rounds); the rule of thumb's pick counts whatever it meets
+    targets = [None, *CURVE_TARGETS]
+    parts = []
+
+    def simulate(idx):
+        ev = run(pairs.iloc[idx]).assign(_position=idx)
+        parts.append(ev)
+        qual = [_feasible_at(ev, t, cfg).to_numpy(bool) for t in targets] + [np.ones(len(ev), bool)]
+        return ev.lifecycle_cost_usd.to_numpy(float), np.column_stack(qual)
+
+    done = settle_groups(lb, [custom] * len(targets) + [np.where(rule, u, -1)], simulate)
+    ev = (pd.concat(parts, ignore_index=True).sort_values("_position", kind="stable").drop(columns="_position")
+          .reset_index(drop=True) if parts else run(pairs.iloc[0:0]))
+    return ev, pd.concat([pairs, bounds[["lb_cost_usd", "calendar_life_years", "delivery_usd"]]], axis=1)[~done]
+
+
+def simulate_options_chunk(item, *, sites, kits, params, tables, cfg: ProgramConfig, delivery_usd,
+                           tier_profiles=None, weather_sources=None, numba_threads: int | None = None) -> pd.DataFrame:
+    """Simulate given options of a few sites (``item``: the sites' positions and the options, a
+    table with ``CANDIDATE_COLUMNS`` and ``unit_id``), building the sites' demand and weather
+    again (both are seeded per site, so they are the ones the first pass used); returns their
+    evaluations (:func:`evaluate`)."""
+    from .parallel import kernel_threads
+
+    positions, rows = item
+    pos = np.asarray(list(positions), dtype=np.int64)
+    with kernel_threads(numba_threads):
+        sub = sites.iloc[pos].reset_index(drop=True)
+        units, demand = build_demand(sub, cfg, tier_profiles)
+        weather = build_weather(sub, cfg, None, weather_sources, positions=pos)
+        local_site = pd.Series(np.arange(len(pos)), index=pos)
+        local_unit = pd.Series(np.arange(len(units)), index=units.unit_id.to_numpy())
+        pairs = pd.DataFrame({"unit_idx": local_unit.loc[rows.unit_id.to_numpy()].to_numpy(np.int64),
+                              "kit_idx": rows.kit_idx.to_numpy(np.int64),
+                              "site_idx": local_site.loc[rows.site_idx.to_numpy()].to_numpy(np.int64),
+                              "blocks": rows.blocks.to_numpy(np.int64),
+                              "battery_blocks": rows.battery_blocks.to_numpy(np.int64),
+                              "inverters": rows.inverters.to_numpy(np.int64), "target": rows.target.to_numpy(float)})
+        run = _chunk_simulator(weather, demand, units, sub, kits, params, tables, cfg,
+                               np.asarray(delivery_usd, float)[pos], {})
+        return run(pairs)
     units = units.assign(site_index=pos[units.site_index.to_numpy()])
     return SiteChunk(int(pos[0]), units, info, screened, ev, [], seconds)
 
@@ -809,22 +1141,29 @@ THUMB_COLUMNS = ("unit_id", "site_id", "scheme", "count", "kit_id", "blocks", "b
 
 
 def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig,
-                     screened: pd.DataFrame, sun_hours: pd.Series) -> dict:
-    """The catalogue stage on the options' metrics and costs: feasible options, the integer
-    program per scheme, reasons for units without a kit, the comparisons (custom per unit, rule of
-    thumb, one kit for all) and the cost curves. Returns a dict of those (and ``warnings``)."""
+                     screened: pd.DataFrame, sun_hours: pd.Series, candidates: pd.DataFrame | None = None,
+                     simulate=None, tracker=None) -> dict:
+    """The catalogue stage on the options' metrics and costs: the integer program per scheme,
+    one type for all and the cost curves (:func:`settle_catalogues`, simulating with
+    ``simulate`` the options in ``candidates`` that they need), reasons for units without a kit
+    and the comparisons (custom per unit, rule of thumb, one kit for all). Returns a dict of
+    those, the evaluations with the options simulated here, the candidates left, and
+    ``warnings``."""
+    c = cfg["catalogue"]
+    points = catalogue_points(units, cfg, ev)
+    solved, ev, candidates, rounds = settle_catalogues(points, ev, candidates, units, kits, cfg, simulate, tracker)
     options = catalogue_options(ev)
     catalogues = {}
-    c = cfg["catalogue"]
     for scheme in ("shs", "minigrid"):
-        scheme_units = units[units.scheme == scheme].unit_id.tolist()
-        catalogues[scheme] = solve_catalogue(scheme, options[options.scheme == scheme], scheme_units, cfg,
-                                             max_types=c[f"max_kit_types_{scheme}"])
+        point = SolvePoint(scheme, int(c[f"max_kit_types_{scheme}"]), None, plan=True)
+        catalogues[scheme] = solved.get(point) or solve_catalogue(scheme, options[options.scheme == scheme], [], cfg,
+                                                                  max_types=point.max_types)
+    one_type = {p.scheme: solved[p] for p in points if p.max_types == 1 and p.target is None}
     unserved = explain_unserved(units, ev, screened, catalogues, options, cfg)
     comparisons = compare(ev, options, units, catalogues, cfg,
                           thumb=rule_of_thumb.choose(ev[[c for c in THUMB_COLUMNS if c in ev]], units, kits, sun_hours)
-                          if len(ev) else None)
-    curves = cost_curves(ev, units, cfg, solved=catalogues)
+                          if len(ev) else None, one_type=one_type)
+    curves = cost_curves(ev, units, cfg, solved)
     warnings = []
     for scheme, res in catalogues.items():
         if res.gap > 0.01:
@@ -832,7 +1171,8 @@ def choose_catalogue(ev: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, 
     if len(unserved):
         warnings.append(f"{len(unserved)} service unit(s) have no kit; see the 'unserved' table for reasons.")
     return {"options": options, "catalogues": catalogues, "unserved": unserved, "comparisons": comparisons,
-            "cost_curves": curves, "warnings": warnings}
+            "cost_curves": curves, "warnings": warnings, "evaluations": ev, "candidates": candidates,
+            "rounds": rounds}
 
 
 def _weather_warnings(info: pd.DataFrame, cfg: ProgramConfig) -> list[str]:
@@ -890,33 +1230,41 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     with runner(scheduler) as run:
         tracker.stage(f"sites: demand, weather, dispatch and metrics, {len(chunks)} chunk(s) of up to "
                       f"{chunk_sites} sites, {cfg['program']['weather_years']} years ({run.name})")
-        parts = run.map(plan_site_chunk, chunks, tracker=tracker, desc="site chunks",
-                        sites=sites, kits=kits, params=params, tables=tables, cfg=cfg,
-                        delivery_usd=delivery.delivery_usd.to_numpy(), tier_profiles=tier_profiles,
-                        weather_sources=weather_sources, numba_threads=run.task_threads)
+        shared = dict(sites=sites, kits=kits, params=params, tables=tables, cfg=cfg,
+                      delivery_usd=delivery.delivery_usd.to_numpy(), tier_profiles=tier_profiles,
+                      weather_sources=weather_sources, numba_threads=run.task_threads)
+        parts = run.map(plan_site_chunk, chunks, tracker=tracker, desc="site chunks", **shared)
         scheduler_name = run.name
-    problems = [p for part in parts for p in part.problems]
-    if problems:
-        raise InputError(problems)
-    for part in parts:
-        for k, v in part.seconds.items():
-            timings[f"sites: {k} (summed over chunks)"] = timings.get(f"sites: {k} (summed over chunks)", 0.0) + v
-    # units and options numbered across the program, in site order
-    units = pd.concat([p.units for p in parts], ignore_index=True)
-    screened = pd.concat([p.screened for p in parts], ignore_index=True)
-    ev = pd.concat([p.evaluations for p in parts], ignore_index=True)
-    ev["pair"] = np.arange(len(ev))
-    info = pd.concat([p.info for p in parts], ignore_index=True)
-    del parts  # the chunks' tables now live in the program's; holding both doubled the memory
-    timings["sites"] = time.perf_counter() - t
-    warnings += _weather_warnings(info, cfg)
+        problems = [p for part in parts for p in part.problems]
+        if problems:
+            raise InputError(problems)
+        for part in parts:
+            for k, v in part.seconds.items():
+                timings[f"sites: {k} (summed over chunks)"] = timings.get(f"sites: {k} (summed over chunks)", 0.0) + v
+        # units and options numbered across the program, in site order
+        units = pd.concat([p.units for p in parts], ignore_index=True)
+        screened = pd.concat([p.screened for p in parts], ignore_index=True)
+        ev = pd.concat([p.evaluations for p in parts], ignore_index=True)
+        ev["pair"] = np.arange(len(ev))
+        offsets = np.cumsum([0] + [len(p.units) for p in parts[:-1]])
+        cand = pd.concat([p.candidates.assign(unit_idx=p.candidates.unit_idx.to_numpy(np.int64) + o)
+                          for p, o in zip(parts, offsets) if len(p.candidates)] or [_candidate_table(
+                              pd.DataFrame(columns=list(CANDIDATE_COLUMNS)), np.zeros(0, np.int64))], ignore_index=True)
+        cand["unit_idx"] = cand.unit_idx.astype(np.int32)
+        info = pd.concat([p.info for p in parts], ignore_index=True)
+        del parts  # the chunks' tables now live in the program's; holding both doubled the memory
+        timings["sites"] = time.perf_counter() - t
+        warnings += _weather_warnings(info, cfg)
 
-    t = time.perf_counter()
-    tracker.stage(f"catalogue ({len(ev):,} options simulated)")
-    sun = pd.Series(info.design_month_sun_hours.to_numpy(), index=info.site_id.to_numpy())
-    cat = choose_catalogue(ev, units, kits, cfg, screened, sun)
-    warnings += cat["warnings"]
-    timings["catalogue"] = time.perf_counter() - t
+        t = time.perf_counter()
+        tracker.stage(f"catalogue ({len(ev):,} options simulated, {len(cand):,} bounded without simulating)")
+        sun = pd.Series(info.design_month_sun_hours.to_numpy(), index=info.site_id.to_numpy())
+        simulate = options_simulator(run, units, chunk_sites, tracker, **shared)
+        cat = choose_catalogue(ev, units, kits, cfg, screened, sun, candidates=cand, simulate=simulate,
+                               tracker=tracker)
+        ev = cat["evaluations"]
+        warnings += cat["warnings"]
+        timings["catalogue"] = time.perf_counter() - t
 
     t = time.perf_counter()
     weather = Weather(np.zeros((0, 0, HOURS_PER_YEAR), np.float32), np.zeros((0, 0, HOURS_PER_YEAR), np.float32), info)
@@ -925,11 +1273,32 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
                         cost_curves=cat["cost_curves"], kit_params=params, transport=delivery,
                         unit_params=unit_parameters(units, cfg), options=cat["options"], screened=screened,
                         kit_tables=tables, tier_profiles=tier_profiles, weather_sources=weather_sources,
-                        scheduler=scheduler_name,
+                        scheduler=scheduler_name, candidates=cat["candidates"], search_rounds=cat["rounds"],
                         warnings=warnings, timings_s=timings, rejected_designs=rejected, config=cfg)
     result.traces = representative_traces(result, params, tables)
     timings["traces"] = time.perf_counter() - t
     return result
+
+
+def options_simulator(run, units: pd.DataFrame, chunk_sites: int, tracker=None, **shared):
+    """A function simulating rows of the candidates table (:data:`CANDIDATE_COLUMNS`, units and
+    sites numbered across the program) where ``run`` (:mod:`fleet.parallel`) runs chunks:
+    the rows' sites, ``chunk_sites`` at a time (:func:`simulate_options_chunk`). Returns their
+    evaluations, in the order of the sites."""
+    unit_ids = units.unit_id.to_numpy()
+
+    def simulate(rows: pd.DataFrame) -> pd.DataFrame:
+        rows = rows.assign(unit_id=unit_ids[rows.unit_idx.to_numpy(np.int64)]).sort_values("site_idx", kind="stable")
+        site = rows.site_idx.to_numpy(np.int64)
+        wanted = np.unique(site)
+        items = []
+        for a in range(0, len(wanted), max(1, int(chunk_sites))):
+            group = wanted[a:a + max(1, int(chunk_sites))]
+            items.append((group, rows[np.isin(site, group)]))
+        parts = run.map(simulate_options_chunk, items, tracker=tracker, desc="options for the catalogue", **shared)
+        return pd.concat(parts, ignore_index=True)
+
+    return simulate
 
 
 def unit_parameters(units: pd.DataFrame, cfg: ProgramConfig) -> np.ndarray:

@@ -59,6 +59,18 @@ def battery_usable_wh(daily_wh, autonomy_days, efficiency=1.0):
     return np.asarray(daily_wh, float) * np.asarray(autonomy_days, float) / np.asarray(efficiency, float)
 
 
+def rule_needs(wp, usable_wh, daily_wh, sun_hours, scheme):
+    """What the rule asks of an option and whether it has it: (array Wp needed, usable Wh
+    needed, the option's array ``wp`` and usable storage ``usable_wh`` both reach them).
+    ``scheme`` per option: 'shs' or 'minigrid' (its days of autonomy and efficiency)."""
+    scheme = np.asarray(scheme)
+    eff = np.where(scheme == "minigrid", MINIGRID_EFFICIENCY, 1.0)
+    days = np.where(scheme == "minigrid", AUTONOMY_DAYS["minigrid"], AUTONOMY_DAYS["shs"])
+    need_wp = array_wp(daily_wh, sun_hours)
+    need_usable = battery_usable_wh(daily_wh, days, eff)
+    return need_wp, need_usable, (np.asarray(wp, float) >= need_wp) & (np.asarray(usable_wh, float) >= need_usable)
+
+
 def choose(evaluations: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame,
            sun_hours_by_site: pd.Series) -> pd.DataFrame:
     """The option each unit gets under the rule of thumb (one row per unit with an option).
@@ -77,13 +89,9 @@ def choose(evaluations: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame,
             usable=evaluations.kit_id.map(k.battery_usable_wh) * evaluations.blocks)
     u = units.set_index("unit_id")
     daily = (u.daily_energy_wh + u.deferrable_wh_day).reindex(ev.unit_id).to_numpy(float)
-    scheme = ev.scheme.to_numpy()
     sun = ev.site_id.map(sun_hours_by_site).to_numpy(float)
-    eff = np.where(scheme == "minigrid", MINIGRID_EFFICIENCY, 1.0)
-    days = np.where(scheme == "minigrid", AUTONOMY_DAYS["minigrid"], AUTONOMY_DAYS["shs"])
-    ev["need_wp"] = array_wp(daily, sun)
-    ev["need_usable_wh"] = battery_usable_wh(daily, days, eff)
-    ev["meets_rule"] = (ev.wp >= ev.need_wp) & (ev.usable >= ev.need_usable_wh)
+    ev["need_wp"], ev["need_usable_wh"], ev["meets_rule"] = rule_needs(
+        ev.wp.to_numpy(float), ev.usable.to_numpy(float), daily, sun, ev.scheme.to_numpy())
     chosen = []
     for _, g in ev.groupby("unit_id", sort=False):
         ok = g[g.meets_rule]
