@@ -88,7 +88,8 @@ def plan_digest(result) -> str:
     return h.hexdigest()[:12]
 
 
-def run_child(n_sites: int, years: int, scheduler: str | None, seed: int, out_json: Path) -> int:
+def run_child(n_sites: int, years: int, scheduler: str | None, seed: int, out_json: Path,
+              option_search: str = "bounded") -> int:
     """Generate, read and plan one program; write the figures to ``out_json``."""
     sys.path.insert(0, str(HERE))
     from synthetic_program import check, make_depots, make_program
@@ -111,7 +112,7 @@ def run_child(n_sites: int, years: int, scheduler: str | None, seed: int, out_js
         sites = read_sites(Path(tmp) / "sites.csv")
         depots = read_depots(Path(tmp) / "depots.csv")
     library = read_library()
-    cfg = load_config().with_overrides(program={"weather_years": years})
+    cfg = load_config().with_overrides(program={"weather_years": years}, catalogue={"option_search": option_search})
     cfg = dataclasses.replace(cfg, depots=depots, depots_note="")
     setup_s = time.perf_counter() - t
 
@@ -125,6 +126,9 @@ def run_child(n_sites: int, years: int, scheduler: str | None, seed: int, out_js
         "sites": len(sites),
         "units": len(result.units),
         "options": len(result.evaluations),
+        "options_not_simulated": len(getattr(result, "candidates", ())),
+        "search_rounds": int(getattr(result, "search_rounds", 0)),
+        "option_search": option_search,
         "years": years,
         "scheduler": scheduler or "inprocess",
         "timings_s": {k: float(v) for k, v in result.timings_s.items()},
@@ -193,12 +197,12 @@ class TreeSampler(threading.Thread):
             self.stop.wait(self.interval_s)
 
 
-def measure(n_sites: int, years: int, scheduler: str | None, seed: int) -> dict:
+def measure(n_sites: int, years: int, scheduler: str | None, seed: int, option_search: str = "bounded") -> dict:
     """Plan ``n_sites`` in a fresh process; its figures plus peak memory and CPU time."""
     with tempfile.TemporaryDirectory(prefix="fleet-bench-scale-") as tmp:
         out_json, err_path = Path(tmp) / "out.json", Path(tmp) / "stderr.txt"
         cmd = [sys.executable, str(Path(__file__).resolve()), "--child", str(n_sites), "--years", str(years),
-               "--seed", str(seed), "--out-json", str(out_json)]
+               "--seed", str(seed), "--out-json", str(out_json), "--option-search", option_search]
         if scheduler:
             cmd += ["--scheduler", scheduler]
         wall = time.perf_counter()
@@ -265,7 +269,9 @@ def _label(stage: str) -> str:
 
 def print_run(r: dict) -> None:
     print(f"== {r['sites']:,} sites, {r['years']} weather years, scheduler {r['scheduler']} ==")
-    print(f"  service units {r['units']:,}; options simulated {r['options']:,}")
+    print(f"  service units {r['units']:,}; options simulated {r['options']:,}; bounded, not simulated "
+          f"{r.get('options_not_simulated', 0):,} ({r.get('option_search', 'bounded')} search, "
+          f"{r.get('search_rounds', 0)} catalogue rounds)")
     total = r["total_s"]
     top = 0.0
     for stage, s in r["timings_s"].items():
@@ -292,7 +298,8 @@ def print_failure(r: dict) -> None:
             print(f"   | {line}")
 
 
-def scale(sizes: list[int], years: int, scheduler: str | None, seed: int, budget_s: float | None) -> None:
+def scale(sizes: list[int], years: int, scheduler: str | None, seed: int, budget_s: float | None,
+          option_search: str = "bounded") -> None:
     measured: list[dict] = []
     skipped: list[int] = []
     for n in sorted(set(sizes)):
@@ -304,7 +311,7 @@ def scale(sizes: list[int], years: int, scheduler: str | None, seed: int, budget
                 print(f"-- skipped {n:,} sites: extrapolated time over the budget")
                 skipped.append(n)
                 continue
-        r = measure(n, years, scheduler, seed)
+        r = measure(n, years, scheduler, seed, option_search)
         if "total_s" not in r:
             print_failure(r)
             continue
@@ -362,24 +369,26 @@ def scale(sizes: list[int], years: int, scheduler: str | None, seed: int, budget
               + ("" if max(sizes_m) >= TARGET_SITES else " (at these sizes only)"))
 
 
-def compare_cluster(n_sites: int, years: int, cluster: str, seed: int, repeat: int = 1) -> None:
-    best = f", best of {repeat} alternating runs each" if repeat > 1 else ""
-    print(f"== in-process vs {cluster}: {n_sites:,} sites, {years} weather years (each in a fresh process{best}) ==")
-    runs: dict[str, list[dict]] = {"in": [], "cluster": []}
+def compare_runs(n_sites: int, years: int, seed: int, variants: list[tuple[str, str | None, str]],
+                 repeat: int = 1) -> tuple[dict, dict] | None:
+    """Plan ``n_sites`` two ways (label, scheduler, option search), each in a fresh process, and
+    print the stages side by side with the ratio second / first; returns the two fastest runs."""
+    runs: dict[str, list[dict]] = {label: [] for label, _, _ in variants}
     for _ in range(repeat):
-        for key, scheduler in (("in", None), ("cluster", cluster)):
-            r = measure(n_sites, years, scheduler, seed)
+        for label, scheduler, search in variants:
+            r = measure(n_sites, years, scheduler, seed, search)
             if "total_s" not in r:
                 print_failure(r)
-                return
-            runs[key].append(r)
-    a = min(runs["in"], key=lambda r: r["total_s"])
-    b = min(runs["cluster"], key=lambda r: r["total_s"])
+                return None
+            runs[label].append(r)
+    (la, *_), (lb, *_) = variants
+    a = min(runs[la], key=lambda r: r["total_s"])
+    b = min(runs[lb], key=lambda r: r["total_s"])
     if repeat > 1:
-        for key, name in (("in", "in-process"), ("cluster", cluster)):
-            print(f"  {name} totals s: " + ", ".join(f"{r['total_s']:.2f}" for r in runs[key]))
+        for label in (la, lb):
+            print(f"  {label} totals s: " + ", ".join(f"{r['total_s']:.2f}" for r in runs[label]))
     w = 40
-    print(f"  {'':<{w}} {'in-process':>11} {cluster:>11} {'ratio':>7}")
+    print(f"  {'':<{w}} {la:>11} {lb:>11} {'ratio':>7}")
     stages = list(dict.fromkeys([*a["timings_s"], *b["timings_s"]]))
     for k in stages:
         x, y = a["timings_s"].get(k, math.nan), b["timings_s"].get(k, math.nan)
@@ -388,14 +397,35 @@ def compare_cluster(n_sites: int, years: int, cluster: str, seed: int, repeat: i
     rows = [("total (run_plan) s", a["total_s"], b["total_s"], ".2f"),
             ("CPU s (process and its children)", a["cpu_s"], b["cpu_s"], ".1f"),
             ("peak memory MB (see below)", a["peak_mb"], b["peak_mb"], ".0f"),
-            ("options simulated", a["options"], b["options"], ",.0f")]
+            ("options simulated", a["options"], b["options"], ",.0f"),
+            ("options bounded, not simulated", a.get("options_not_simulated", 0), b.get("options_not_simulated", 0), ",.0f"),
+            ("catalogue rounds", a.get("search_rounds", 0), b.get("search_rounds", 0), ".0f")]
     for name, x, y, f in rows:
         print(f"  {name:<{w}} {x:>11{f}} {y:>11{f}} {y / x if x else math.nan:>7.2f}")
     print("  peak memory: larger of the largest process and the sampled process-tree sum (workers included)")
     digests = {r["digest"] for rs in runs.values() for r in rs}
     print(f"  same plan in every run: {'yes' if len(digests) == 1 else 'NO'} (digests {', '.join(sorted(digests))})")
-    ratio = b["total_s"] / a["total_s"]
-    print(f"  target cluster / in-process <= 1: measured {ratio:.2f}: {'HOLDS' if ratio <= 1 else 'FAILS'}")
+    return a, b
+
+
+def compare_cluster(n_sites: int, years: int, cluster: str, seed: int, repeat: int = 1) -> None:
+    best = f", best of {repeat} alternating runs each" if repeat > 1 else ""
+    print(f"== in-process vs {cluster}: {n_sites:,} sites, {years} weather years (each in a fresh process{best}) ==")
+    out = compare_runs(n_sites, years, seed, [("in-process", None, "bounded"), (cluster, cluster, "bounded")], repeat)
+    if out:
+        ratio = out[1]["total_s"] / out[0]["total_s"]
+        print(f"  target cluster / in-process <= 1: measured {ratio:.2f}: {'HOLDS' if ratio <= 1 else 'FAILS'}")
+
+
+def compare_search(n_sites: int, years: int, seed: int, repeat: int = 1) -> None:
+    """Every listed option simulated against the bounded search, same program, side by side."""
+    best = f", best of {repeat} alternating runs each" if repeat > 1 else ""
+    print(f"== every option simulated vs the bounded search: {n_sites:,} sites, {years} weather years "
+          f"(in-process, each in a fresh process{best}) ==")
+    out = compare_runs(n_sites, years, seed, [("every", None, "every"), ("bounded", None, "bounded")], repeat)
+    if out:
+        print(f"  speed-up every / bounded: {out[0]['total_s'] / out[1]['total_s']:.2f}x end to end, "
+              f"{out[0]['options'] / max(out[1]['options'], 1):.2f}x fewer options simulated")
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -414,22 +444,29 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--cluster", default="local:2", help="scheduler of --compare-cluster (default local:2)")
     ap.add_argument("--repeat", type=int, default=1,
                     help="--compare-cluster: alternate the two this many times and keep each one's fastest (default 1)")
+    ap.add_argument("--option-search", choices=("bounded", "every"), default="bounded",
+                    help="how the --sizes runs choose options to simulate (default bounded)")
+    ap.add_argument("--compare-search", type=int, metavar="N", default=None,
+                    help="also plan N sites simulating every option and with the bounded search, side by side")
     ap.add_argument("--child", type=int, default=None, help=argparse.SUPPRESS)
     ap.add_argument("--out-json", type=Path, default=None, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.child is not None:
-        return run_child(args.child, args.years, args.scheduler, args.seed, args.out_json)
+        return run_child(args.child, args.years, args.scheduler, args.seed, args.out_json, args.option_search)
     if args.compare_cluster is not None and args.compare_cluster < 1:
         ap.error("--compare-cluster must be >= 1")
-    sizes = args.sizes if args.sizes is not None else ([] if args.compare_cluster else [100, 1000, 10_000])
+    sizes = args.sizes if args.sizes is not None else ([] if args.compare_cluster or args.compare_search
+                                                       else [100, 1000, 10_000])
     if any(n < 1 for n in sizes) or args.years < 1 or args.repeat < 1:
         ap.error("sizes, --years and --repeat must be >= 1")
     print(f"python {sys.version.split()[0]}, {os.cpu_count()} CPUs visible; every figure is measured in this run "
           f"unless marked EXTRAPOLATION")
     if sizes:
-        scale(sizes, args.years, args.scheduler, args.seed, args.time_budget_s)
+        scale(sizes, args.years, args.scheduler, args.seed, args.time_budget_s, args.option_search)
     if args.compare_cluster:
         compare_cluster(args.compare_cluster, args.years, args.cluster, args.seed, args.repeat)
+    if args.compare_search:
+        compare_search(args.compare_search, args.years, args.seed, args.repeat)
     return 0
 
 

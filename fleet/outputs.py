@@ -453,6 +453,9 @@ def write_run(result: PlanResult, out_dir: str | Path, *, inputs: dict[str, str]
                               "solver": r.solver}
                           for s, r in result.catalogues.items()},
             "options_simulated": int(len(result.evaluations)),
+            "options_bounded_not_simulated": int(len(getattr(result, "candidates", ()))),
+            "option_search": str(result.config["catalogue"].get("option_search", "bounded")),
+            "catalogue_search_rounds": int(getattr(result, "search_rounds", 0)),
             "warnings": result.warnings,
             **(record_extra or {}),
         }

@@ -1280,6 +1280,33 @@ def run_plan(sites, library: ComponentLibrary, cfg: ProgramConfig, tracker=None,
     return result
 
 
+def reprice_candidates(cand: pd.DataFrame, units: pd.DataFrame, kits: pd.DataFrame, cfg: ProgramConfig) -> pd.DataFrame:
+    """The options not simulated with their lower-bound costs computed again from ``kits``
+    (new prices; :func:`lower_bound_costs`, with the calendar lives and deliveries kept)."""
+    if not len(cand):
+        return cand
+    k = kits.iloc[cand.kit_idx.to_numpy(np.int64)].reset_index(drop=True)
+    u = units.iloc[cand.unit_idx.to_numpy(np.int64)].reset_index(drop=True)
+    table = cand.reset_index(drop=True).assign(scheme=u.scheme.to_numpy())
+    qty = plant_quantities(k, *option_counts(table))
+    lcc_one, _, _ = _option_costs_delivered(qty, cand.calendar_life_years.to_numpy(float),
+                                            cand.delivery_usd.to_numpy(float), table, cfg)
+    return cand.assign(lb_cost_usd=lcc_one * u["count"].to_numpy(float))
+
+
+def result_simulator(result: "PlanResult", kits: pd.DataFrame | None = None, cfg: ProgramConfig | None = None):
+    """:func:`options_simulator` for a finished plan (in this process), e.g. to choose its
+    catalogue again with new prices (``kits``) without losing exactness."""
+    from .parallel import InProcess
+
+    return options_simulator(InProcess(), result.units, CHUNK_SITES, None, sites=result.sites,
+                             kits=result.kits if kits is None else kits, params=result.kit_params,
+                             tables=result.kit_tables, cfg=result.config if cfg is None else cfg,
+                             delivery_usd=result.transport.delivery_usd.to_numpy(),
+                             tier_profiles=result.tier_profiles, weather_sources=result.weather_sources,
+                             numba_threads=None)
+
+
 def options_simulator(run, units: pd.DataFrame, chunk_sites: int, tracker=None, **shared):
     """A function simulating rows of the candidates table (:data:`CANDIDATE_COLUMNS`, units and
     sites numbered across the program) where ``run`` (:mod:`fleet.parallel`) runs chunks:

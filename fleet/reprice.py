@@ -1,10 +1,12 @@
 """The price round trip: unit prices that procurement filled in on a run's bill of
 materials are read back, checked, and the catalogue is chosen again with them.
 
-Prices do not change how a kit behaves, so nothing is simulated again: every option's
-reliability, battery life and energy served are the run's own (kept in the run folder's
-state file); only the costs that depend on component prices are recomputed, and the
-catalogue, the comparisons and the cost curves are solved again.
+Prices do not change how a kit behaves, so nothing the run simulated is simulated again:
+every option's reliability, battery life and energy served are the run's own (kept in the
+run folder's state file); only the costs that depend on component prices are recomputed, and
+the catalogue, the comparisons and the cost curves are solved again. Options the run left
+unsimulated (their lower-bound costs showed no answer could use them; :mod:`fleet.search`)
+get bounds at the new prices, and those a new solution uses are simulated then.
 
 Checks on the workbook (each problem names the sheet and the cell; all are listed at
 once and nothing is guessed):
@@ -36,7 +38,7 @@ from .kits import capex_columns
 
 #: File in a run folder holding what ``fleet reprice`` needs from the run.
 STATE_FILE = "plan_state.pkl.gz"
-STATE_VERSION = 1
+STATE_VERSION = 2
 #: A price more than this many times higher or lower than the run's is listed as implausible.
 DEFAULT_MAX_CHANGE = 3.0
 
@@ -227,7 +229,7 @@ def reprice_plan(result, edits: PriceEdits):
     """
     import dataclasses
 
-    from .plan import choose_catalogue, representative_traces, reprice_evaluations
+    from .plan import choose_catalogue, representative_traces, reprice_candidates, reprice_evaluations, result_simulator
 
     cfg = result.config
     if not math.isclose(edits.spares_fraction, cfg["catalogue"]["spares_fraction"], abs_tol=1e-12):
@@ -236,10 +238,15 @@ def reprice_plan(result, edits: PriceEdits):
     ev = reprice_evaluations(result.evaluations, kits, cfg, result.transport)
     info = result.weather.info
     sun = pd.Series(info.design_month_sun_hours.to_numpy(), index=info.site_id.to_numpy())
-    cat = choose_catalogue(ev, result.units, kits, cfg, result.screened, sun)
+    # options the run did not simulate may become worth it at the new prices: their bounds are
+    # priced again and the catalogue rounds simulate the ones a solution uses
+    cand = reprice_candidates(result.candidates, result.units, kits, cfg)
+    cat = choose_catalogue(ev, result.units, kits, cfg, result.screened, sun, candidates=cand,
+                           simulate=result_simulator(result, kits, cfg) if len(cand) else None)
     warnings = [w for w in result.warnings if not w.startswith(_CATALOGUE_WARNINGS)
                 and "service unit(s) have no kit" not in w] + cat["warnings"]
-    new = dataclasses.replace(result, kits=kits, bom=bom, evaluations=ev, options=cat["options"],
+    new = dataclasses.replace(result, kits=kits, bom=bom, evaluations=cat["evaluations"], options=cat["options"],
+                              candidates=cat["candidates"], search_rounds=result.search_rounds + cat["rounds"],
                               catalogues=cat["catalogues"], comparisons=cat["comparisons"],
                               unserved=cat["unserved"], cost_curves=cat["cost_curves"], warnings=warnings,
                               config=cfg, traces={})

@@ -179,3 +179,34 @@ def test_plant_options_count_inverters_for_peak_and_motor_start_and_keep_the_par
     for col in ("pv_block_id", "battery_block_id", "inverter_id"):
         assert set(plan[col]) <= set(res.chosen_blocks[col])
         assert len(res.chosen_blocks[col]) <= config["catalogue"]["max_kit_types_minigrid"]
+
+
+def test_the_bounded_option_search_plans_what_simulating_every_option_plans(tiny_sites, library, config):
+    # source: exhaustive simulation of every listed option (catalogue.option_search = "every") is the
+    # reference; the bounded search must give the same catalogues, comparisons and cost curves
+    from fleet.plan import reprice_candidates
+
+    bounded = run_plan(tiny_sites, library, config.with_overrides(catalogue={"option_search": "bounded"}))
+    every = run_plan(tiny_sites, library, config.with_overrides(catalogue={"option_search": "every"}))
+    for scheme, res in every.catalogues.items():
+        other = bounded.catalogues[scheme]
+        assert other.chosen_kits == res.chosen_kits
+        assert other.objective_usd == pytest.approx(res.objective_usd, rel=1e-9)
+        assert other.assignment.sort_index().equals(res.assignment.sort_index())
+    pd.testing.assert_frame_equal(bounded.comparisons, every.comparisons)
+    pd.testing.assert_frame_equal(bounded.cost_curves, every.cost_curves)
+    # it simulated fewer options; every option it skipped is listed with a bound that is no more
+    # than the option's simulated cost
+    assert len(bounded.evaluations) + len(bounded.candidates) == len(every.evaluations)
+    assert 0 < len(bounded.candidates)
+    c = bounded.candidates
+    skipped = pd.DataFrame({"unit_id": bounded.units.unit_id.to_numpy()[c.unit_idx],
+                            "kit_id": bounded.kits.kit_id.to_numpy()[c.kit_idx], "blocks": c.blocks.astype(int),
+                            "battery_blocks": c.battery_blocks.astype(int), "inverters": c.inverters.astype(int),
+                            "lb": c.lb_cost_usd.to_numpy()})
+    true = skipped.merge(every.evaluations, on=["unit_id", "kit_id", "blocks", "battery_blocks", "inverters"])
+    assert len(true) == len(skipped)
+    assert (true.lb <= true.lifecycle_cost_usd * (1 + 1e-12)).all()
+    # pricing the bounds again at the run's own prices gives the run's bounds
+    again = reprice_candidates(c, bounded.units, bounded.kits, bounded.config)
+    np.testing.assert_allclose(again.lb_cost_usd, c.lb_cost_usd, rtol=1e-12)
