@@ -1130,8 +1130,6 @@ def simulate_options_chunk(item, *, sites, kits, params, tables, cfg: ProgramCon
         run = _chunk_simulator(weather, demand, units, sub, kits, params, tables, cfg,
                                np.asarray(delivery_usd, float)[pos], {})
         return run(pairs)
-    units = units.assign(site_index=pos[units.site_index.to_numpy()])
-    return SiteChunk(int(pos[0]), units, info, screened, ev, [], seconds)
 
 
 #: Option columns the rule-of-thumb comparison reads (a slice, not a copy of every column).
